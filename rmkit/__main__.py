@@ -1,0 +1,5 @@
+import sys
+
+from rmkit.cli import main
+
+sys.exit(main())

@@ -1,0 +1,1 @@
+"""Subcommands of the ``rmkit`` command line (see :mod:`rmkit.cli`)."""

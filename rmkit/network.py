@@ -1,0 +1,197 @@
+"""The network: legs with integer capacities, products with fares, and the incidence matrix.
+
+A product j uses a set of legs; the 0/1 incidence matrix ``A`` has ``A[i, j] = 1`` when product j
+needs one seat on leg i. Every solver in rmkit reads the network only through this class.
+
+>>> net = Network.build(
+...     legs=[("AB", 2), ("BC", 1)],
+...     products=[("AB-Y", 100.0, ["AB"]), ("AC-Y", 150.0, ["AB", "BC"])],
+... )
+>>> net.incidence.tolist()
+[[1, 1], [0, 1]]
+>>> net.state_space_size
+6
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Iterable, Sequence
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from rmkit.errors import InputError
+
+
+@dataclass(frozen=True)
+class Leg:
+    """One resource (a flight leg, a train segment, a room night) with a whole-number capacity."""
+
+    id: str
+    capacity: int
+    name: str = ""
+
+
+@dataclass(frozen=True)
+class Product:
+    """Something sold: a fare on a path of one or more legs."""
+
+    id: str
+    fare: float
+    legs: tuple[str, ...]
+    name: str = ""
+    fare_class: str = ""
+    origin: str = ""
+    destination: str = ""
+
+
+def _readonly(a: np.ndarray) -> np.ndarray:
+    a.setflags(write=False)
+    return a
+
+
+@dataclass(frozen=True, eq=False)
+class Network:
+    """Legs, products and the leg-by-product incidence matrix; validated once, then read-only."""
+
+    legs: tuple[Leg, ...]
+    products: tuple[Product, ...]
+    name: str = ""
+    incidence: np.ndarray = field(init=False, repr=False)
+    capacities: np.ndarray = field(init=False, repr=False)
+    fares: np.ndarray = field(init=False, repr=False)
+
+    def __post_init__(self) -> None:
+        if not self.legs:
+            raise InputError("leg: a network needs at least one leg; add a [[leg]] entry")
+        if not self.products:
+            raise InputError("product: a network needs at least one product; add a [[product]]")
+        index: dict[str, int] = {}
+        for i, leg in enumerate(self.legs):
+            where = f"leg[{i}]"
+            if not isinstance(leg.id, str) or not leg.id:
+                raise InputError(f"{where}.id: must be a non-empty string, got {leg.id!r}")
+            if leg.id in index:
+                raise InputError(f"{where}.id: duplicate leg id {leg.id!r}; leg ids must be unique")
+            cap = leg.capacity
+            if isinstance(cap, bool) or not isinstance(cap, (int, np.integer)) or cap < 0:
+                raise InputError(
+                    f"{where}.capacity: must be a whole number >= 0, got {cap!r} "
+                    f"(leg {leg.id!r}); give a non-negative integer seat count"
+                )
+            index[leg.id] = i
+        seen: set[str] = set()
+        a = np.zeros((len(self.legs), len(self.products)), dtype=np.int64)
+        for j, prod in enumerate(self.products):
+            where = f"product[{j}]"
+            if not isinstance(prod.id, str) or not prod.id:
+                raise InputError(f"{where}.id: must be a non-empty string, got {prod.id!r}")
+            if prod.id in seen:
+                raise InputError(f"{where}.id: duplicate product id {prod.id!r}; ids must be unique")
+            seen.add(prod.id)
+            fare = prod.fare
+            if (
+                isinstance(fare, bool)
+                or not isinstance(fare, (int, float, np.floating, np.integer))
+                or not math.isfinite(float(fare))
+                or float(fare) <= 0
+            ):
+                raise InputError(
+                    f"{where}.fare: must be a finite number > 0, got {fare!r} "
+                    f"(product {prod.id!r}); give a positive fare"
+                )
+            if not prod.legs:
+                raise InputError(f"{where}.legs: product {prod.id!r} uses no leg; list its legs")
+            for leg_id in prod.legs:
+                if leg_id not in index:
+                    raise InputError(
+                        f"{where}.legs: product {prod.id!r} uses unknown leg {leg_id!r}; "
+                        f"known legs: {', '.join(index)}"
+                    )
+                if a[index[leg_id], j]:
+                    raise InputError(
+                        f"{where}.legs: product {prod.id!r} lists leg {leg_id!r} twice"
+                    )
+                a[index[leg_id], j] = 1
+        object.__setattr__(self, "incidence", _readonly(a))
+        object.__setattr__(
+            self,
+            "capacities",
+            _readonly(np.array([int(leg.capacity) for leg in self.legs], dtype=np.int64)),
+        )
+        object.__setattr__(
+            self,
+            "fares",
+            _readonly(np.array([float(p.fare) for p in self.products], dtype=np.float64)),
+        )
+
+    @classmethod
+    def build(
+        cls,
+        legs: Iterable[tuple[str, int]],
+        products: Iterable[tuple[str, float, Sequence[str]]],
+        name: str = "",
+    ) -> Network:
+        """Shorthand constructor from ``(id, capacity)`` and ``(id, fare, legs)`` tuples."""
+        return cls(
+            legs=tuple(Leg(id=i, capacity=c) for i, c in legs),
+            products=tuple(Product(id=i, fare=f, legs=tuple(ls)) for i, f, ls in products),
+            name=name,
+        )
+
+    @property
+    def n_legs(self) -> int:
+        return len(self.legs)
+
+    @property
+    def n_products(self) -> int:
+        return len(self.products)
+
+    @property
+    def leg_ids(self) -> list[str]:
+        return [leg.id for leg in self.legs]
+
+    @property
+    def product_ids(self) -> list[str]:
+        return [p.id for p in self.products]
+
+    def leg_index(self, leg_id: str) -> int:
+        for i, leg in enumerate(self.legs):
+            if leg.id == leg_id:
+                return i
+        raise InputError(f"leg: unknown leg id {leg_id!r}; known legs: {', '.join(self.leg_ids)}")
+
+    def product_legs(self, j: int) -> np.ndarray:
+        """Indices of the legs product ``j`` uses."""
+        return np.flatnonzero(self.incidence[:, j])
+
+    @property
+    def max_capacity(self) -> int:
+        return int(self.capacities.max())
+
+    @property
+    def state_space_size(self) -> int:
+        """Number of capacity vectors 0 <= x <= c, the exact network DP's state count."""
+        return math.prod(int(c) + 1 for c in self.capacities)
+
+    def check_capacity(self, capacity: Sequence[int] | np.ndarray, field_name: str) -> np.ndarray:
+        """Validate a remaining-capacity vector against this network; return it as int64."""
+        x = np.asarray(capacity)
+        if x.shape != (self.n_legs,):
+            raise InputError(
+                f"{field_name}: needs one remaining capacity per leg ({self.n_legs}), "
+                f"got shape {x.shape}"
+            )
+        if not np.issubdtype(x.dtype, np.integer):
+            if not np.all(np.isfinite(x)) or np.any(x != np.round(x)):
+                raise InputError(f"{field_name}: remaining capacities must be whole numbers")
+        x = x.astype(np.int64)
+        bad = np.flatnonzero((x < 0) | (x > self.capacities))
+        if bad.size:
+            i = int(bad[0])
+            raise InputError(
+                f"{field_name}[{i}]: remaining capacity of leg {self.legs[i].id!r} must be in "
+                f"[0, {int(self.capacities[i])}], got {int(x[i])}"
+            )
+        return x

@@ -1,0 +1,238 @@
+"""The one result type every solver returns, and the schema that labels it.
+
+Solvers hand back raw numpy arrays keyed by the variable names of :data:`SCHEMA`; this module is
+the single place that knows each variable's dimensions, units and meaning, and the only place that
+builds an ``xarray.Dataset`` from them. Coordinates carry what is compared (leg and product ids,
+period and capacity indices); attrs carry provenance (method, parameters as JSON, status, seed,
+rmkit version, wall time, the booking state solved from).
+
+Conventions
+-----------
+* Periods are 0-based, ``0 .. T-1``; a result solved from period ``t0`` covers ``t0 .. T-1``.
+* ``capacity`` runs over ``0 .. max_i c_i`` (the network's full capacities, so re-solves from
+  any state share the same labels).
+* ``bid_price_table[t, x, i]`` is the bid price of leg i for a request arriving in period t when
+  the leg has x seats left: the value of its x-th seat, ``v_i(t+1, x) - v_i(t+1, x-1)``. It is
+  ``+inf`` at x = 0 (no seat to sell) and NaN above the leg's capacity.
+* ``leg_value[t, x, i]`` is a leg's value to go at the start of period t with x seats left.
+"""
+
+from __future__ import annotations
+
+import json
+import time
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from rmkit._version import __version__
+from rmkit.errors import InputError
+from rmkit.network import Network
+
+#: Shared status list (every back end's native status maps onto one of these).
+STATUSES = ("optimal", "optimal_inaccurate", "infeasible", "iteration_limit", "error")
+
+
+@dataclass(frozen=True)
+class VariableSpec:
+    dims: tuple[str, ...]
+    units: str
+    description: str
+
+
+CURRENCY = "currency"
+PER_SEAT = "currency per seat"
+
+#: Variable name -> dims, units, meaning. The single source of truth for result labels.
+SCHEMA: dict[str, VariableSpec] = {
+    "value": VariableSpec((), CURRENCY, "objective: optimum, bound or expected revenue to go"),
+    "value_stderr": VariableSpec((), CURRENCY, "standard error of a sampled value"),
+    "bid_price": VariableSpec(("leg",), PER_SEAT, "leg bid prices at the state solved from"),
+    "bid_price_table": VariableSpec(
+        ("period", "capacity", "leg"), PER_SEAT, "bid price by period and seats left"
+    ),
+    "leg_value": VariableSpec(
+        ("period", "capacity", "leg"), CURRENCY, "leg value to go at the start of a period"
+    ),
+    "allocation": VariableSpec(("product",), "seats", "seats allocated to each product"),
+    "net_fare": VariableSpec(("leg", "product"), CURRENCY, "fare a leg counts for a product"),
+    "protection_level": VariableSpec(
+        ("leg", "bucket"), "seats", "seats protected for buckets 0..b (nested, 0 = highest)"
+    ),
+    "booking_limit": VariableSpec(("leg", "bucket"), "seats", "nested booking limit per bucket"),
+    "bucket": VariableSpec(("leg", "product"), "1", "bucket index of a product on a leg, -1 = none"),
+    "bucket_fare": VariableSpec(("leg", "bucket"), CURRENCY, "representative fare of a bucket"),
+    "multiplier": VariableSpec(
+        ("period", "leg", "product"), CURRENCY, "Lagrange multipliers splitting fares over legs"
+    ),
+    "bound_history": VariableSpec(("iteration",), CURRENCY, "bound after each iteration"),
+    "gap_history": VariableSpec(("iteration",), "1", "relative gap after each iteration"),
+    "opportunity_cost": VariableSpec(
+        ("product",), CURRENCY, "displacement cost of selling one unit of a product"
+    ),
+}
+
+
+@dataclass(frozen=True)
+class BookingState:
+    """Where in the booking process a solve starts: a period and the seats left on each leg.
+
+    ``capacity=None`` means the network's full capacities.
+    """
+
+    period: int = 0
+    capacity: tuple[int, ...] | None = None
+
+    def resolve(self, network: Network, n_periods: int) -> tuple[int, np.ndarray]:
+        period = self.period
+        if isinstance(period, bool) or not isinstance(period, (int, np.integer)):
+            raise InputError(f"state.period: must be a whole number, got {period!r}")
+        if not 0 <= period < n_periods:
+            raise InputError(f"state.period: must be in [0, {n_periods - 1}], got {period}")
+        if self.capacity is None:
+            x = np.array(network.capacities, dtype=np.int64)
+        else:
+            x = network.check_capacity(self.capacity, "state.capacity")
+        return int(period), x
+
+
+def _dim_sizes(network: Network, period: int, n_periods: int) -> dict[str, int]:
+    return {
+        "leg": network.n_legs,
+        "product": network.n_products,
+        "period": n_periods - period,
+        "capacity": network.max_capacity + 1,
+    }
+
+
+@dataclass(frozen=True, eq=False)
+class SolveResult:
+    """What every solver returns: labelled-by-schema arrays plus provenance.
+
+    ``variables`` maps :data:`SCHEMA` names to arrays. ``payload`` holds unlabelled internals
+    other parts of rmkit need (e.g. the exact DP's packed decisions); it is not exported.
+    """
+
+    method: str
+    network: Network
+    n_periods: int
+    variables: Mapping[str, np.ndarray]
+    status: str = "optimal"
+    parameters: Mapping[str, Any] = field(default_factory=dict)
+    seed: int | None = None
+    seconds: float = 0.0
+    period: int = 0
+    capacity: tuple[int, ...] = ()
+    message: str = ""
+    payload: Mapping[str, Any] = field(default_factory=dict)
+
+    def __post_init__(self) -> None:
+        if self.status not in STATUSES:
+            raise ValueError(f"status must be one of {STATUSES}, got {self.status!r}")
+        sizes = _dim_sizes(self.network, self.period, self.n_periods)
+        checked: dict[str, np.ndarray] = {}
+        for name, arr in self.variables.items():
+            if name not in SCHEMA:
+                raise ValueError(f"{self.method}: unknown result variable {name!r}")
+            a = np.array(arr, copy=True)
+            dims = SCHEMA[name].dims
+            if a.ndim != len(dims):
+                raise ValueError(f"{self.method}: {name} needs dims {dims}, got shape {a.shape}")
+            for d, n in zip(dims, a.shape, strict=True):
+                if d in sizes and sizes[d] != n:
+                    raise ValueError(
+                        f"{self.method}: {name} has {n} along {d!r}, expected {sizes[d]}"
+                    )
+            a.setflags(write=False)
+            checked[name] = a
+        object.__setattr__(self, "variables", checked)
+        if not self.capacity:
+            object.__setattr__(self, "capacity", tuple(int(c) for c in self.network.capacities))
+
+    # ----------------------------------------------------------- accessors
+    def __getitem__(self, name: str) -> np.ndarray:
+        return self.variables[name]
+
+    def __contains__(self, name: object) -> bool:
+        return name in self.variables
+
+    @property
+    def value(self) -> float:
+        return float(self.variables["value"]) if "value" in self.variables else float("nan")
+
+    @property
+    def stderr(self) -> float | None:
+        v = self.variables.get("value_stderr")
+        return None if v is None else float(v)
+
+    @property
+    def bid_prices(self) -> np.ndarray:
+        """Leg bid prices at the state solved from (static, or looked up in the table)."""
+        if "bid_price" in self.variables:
+            return self.variables["bid_price"]
+        if "bid_price_table" in self.variables:
+            return self.bid_prices_at(self.period, np.asarray(self.capacity))
+        raise KeyError(f"{self.method} gives no bid prices")
+
+    def bid_prices_at(self, period: int, capacity: np.ndarray) -> np.ndarray:
+        """Leg bid prices for a request in ``period`` with ``capacity`` seats left per leg."""
+        if "bid_price_table" in self.variables:
+            table = self.variables["bid_price_table"]
+            x = np.asarray(capacity, dtype=np.int64)
+            return table[period - self.period, x, np.arange(x.size)]
+        return self.bid_prices
+
+    # ----------------------------------------------------------- export
+    def coords(self) -> dict[str, Any]:
+        net = self.network
+        return {
+            "leg": np.array(net.leg_ids, dtype=object),
+            "product": np.array(net.product_ids, dtype=object),
+            "period": np.arange(self.period, self.n_periods),
+            "capacity": np.arange(net.max_capacity + 1),
+        }
+
+    def attrs(self) -> dict[str, Any]:
+        return {
+            "method": self.method,
+            "status": self.status,
+            "message": self.message,
+            "parameters": json.dumps(dict(self.parameters), sort_keys=True, default=str),
+            "seed": -1 if self.seed is None else int(self.seed),
+            "seconds": float(self.seconds),
+            "state_period": int(self.period),
+            "state_capacity": json.dumps([int(c) for c in self.capacity]),
+            "network": self.network.name,
+            "rmkit_version": __version__,
+        }
+
+    def to_dataset(self):
+        """The result as an ``xarray.Dataset`` (dims and units from :data:`SCHEMA`)."""
+        import xarray as xr
+
+        coords = self.coords()
+        data_vars = {}
+        used: set[str] = set()
+        for name, arr in self.variables.items():
+            spec = SCHEMA[name]
+            used.update(spec.dims)
+            data_vars[name] = xr.Variable(
+                spec.dims, arr, attrs={"units": spec.units, "description": spec.description}
+            )
+        ds = xr.Dataset(data_vars, coords={k: v for k, v in coords.items() if k in used})
+        ds.attrs.update(self.attrs())
+        return ds
+
+
+class Timer:
+    """Wall-clock seconds of a block, for the ``seconds`` attr."""
+
+    def __enter__(self) -> Timer:
+        self.start = time.perf_counter()
+        self.seconds = 0.0
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.seconds = time.perf_counter() - self.start
