@@ -153,6 +153,11 @@ _ADVICE = {
 }
 
 
+def failure_message(what: str, status: str, detail: str) -> str:
+    """``"<what> <status> (<HiGHS detail>): <what to check>"``, the one wording of LP failures."""
+    return f"{what} {status} ({detail}): {_ADVICE.get(status, _ADVICE['error'])}"
+
+
 def _csc_incidence(a: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     rows, cols = np.nonzero(a.T)  # ordered by product, then leg
     start = np.zeros(a.shape[1] + 1, dtype=np.int32)
@@ -358,7 +363,7 @@ class NetworkLP:
             np.full(n, np.nan),
             np.full(m, np.nan),
             status,
-            f"network LP {status} ({detail}): {_ADVICE.get(status, _ADVICE['error'])}",
+            failure_message("network LP", status, detail),
             choice,
             iterations,
         )

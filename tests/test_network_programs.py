@@ -217,3 +217,180 @@ def test_dlp_bounds_exact_optimum_from_every_state():
     for t in (0, 4, 9):
         for x, v in exact[t].items():
             assert model.solve(np.array(x), dem.demand_to_come(t)).value >= v - 1e-9
+
+
+# ----------------------------------------------------------------------------- orderings
+ORDERING_SEEDS = range(6)
+
+
+def _small_random(seed: int):
+    return random_problem(300 + seed, n_legs=3, max_capacity=3, n_products=6, n_periods=10)
+
+
+@pytest.mark.parametrize("seed", ORDERING_SEEDS)
+def test_exact_le_perfect_hindsight_le_dlp(seed):
+    """Exact optimum <= E[perfect hindsight] <= DLP (Talluri & van Ryzin 1999; 2004, sec. 3.3)."""
+    net, dem = _small_random(seed)
+    exact = brute_force_values(net, dem)[0][tuple(int(c) for c in net.capacities)]
+    ph = get_solver("ph", samples=2000).solve(net, dem, seed=seed)
+    dlp = get_solver("dlp").solve(net, dem)
+    assert ph.stderr > 0
+    assert exact <= ph.value + 3 * ph.stderr
+    assert ph.value <= dlp.value + 3 * ph.stderr
+    assert exact <= dlp.value + 1e-9
+
+
+@pytest.mark.parametrize("seed", ORDERING_SEEDS)
+@pytest.mark.parametrize("law", ["poisson", "normal"])
+def test_pnlp_objective_le_dlp(seed, law):
+    net, dem = _small_random(seed)
+    for t in (0, 5):
+        state = BookingState(t, tuple(int(c) for c in net.capacities))
+        pnlp = get_solver("pnlp", law=law).solve(net, dem, state=state)
+        dlp = get_solver("dlp").solve(net, dem, state=state)
+        assert pnlp.status == "optimal"
+        assert pnlp.value <= dlp.value + 1e-9  # Jensen: E[min(D, y)] <= min(E[D], y)
+
+
+@pytest.mark.parametrize("method", ["dlp", "rlp", "pnlp"])
+def test_bid_prices_non_negative_on_random_states(method):
+    for net, dem, t, x in _random_states(3, 12):
+        res = get_solver(method).solve(net, dem, state=BookingState(t, tuple(int(v) for v in x)),
+                                       seed=t)
+        assert res.status == "optimal"
+        assert np.all(np.isfinite(res.bid_prices)) and np.all(res.bid_prices >= 0.0)
+
+
+@pytest.mark.parametrize("method", ["rlp", "pnlp"])
+def test_slack_leg_has_zero_bid_price_for_every_method(method):
+    """Leg B (50 seats) can never fill: at most 20 requests for the two products using it."""
+    net = Network.build(
+        [("A", 3), ("B", 50)],
+        [("A1", 120.0, ["A"]), ("B1", 80.0, ["B"]), ("AB", 150.0, ["A", "B"])],
+    )
+    dem = DemandModel(np.full((20, 3), 0.3))
+    res = get_solver(method).solve(net, dem, seed=0)
+    assert res.bid_prices[1] == 0.0
+    assert res.bid_prices[0] > 0.0
+
+
+# ----------------------------------------------------------------------------- PNLP references
+def _expected_sales(law: str, mean: float, var: float, y: int) -> float:
+    """E[min(D, y)] straight from scipy's distributions (a reference apart from pnlp's code)."""
+    from scipy import integrate
+    from scipy.stats import norm, poisson
+
+    if law == "poisson":
+        k = np.arange(0, y + int(mean + 20 * np.sqrt(mean + 1)) + 50)
+        return float(np.sum(np.minimum(k, y) * poisson.pmf(k, mean)))
+    s = np.sqrt(var)
+    below, _ = integrate.quad(lambda v: v * norm.pdf(v, mean, s), -np.inf, y)
+    return float(below + y * norm.sf(y, mean, s))
+
+
+@pytest.mark.parametrize("law", ["poisson", "normal"])
+@pytest.mark.parametrize("seed", range(4))
+def test_pnlp_equals_brute_force_over_whole_allocations(law, seed):
+    """On two-leg networks the incidence matrix is an interval matrix, hence totally unimodular,
+    so the piecewise-linear program has a whole-number optimum; it must equal the best whole
+    allocation found by enumeration with E[min(D, y)] from scipy.stats."""
+    import itertools
+
+    net, dem = random_problem(600 + seed, n_legs=2, max_capacity=4, n_products=4, n_periods=12)
+    p = dem.probabilities
+    mean, var = p.sum(axis=0), (p * (1 - p)).sum(axis=0)
+    res = get_solver("pnlp", law=law).solve(net, dem)
+    y = res["allocation"]
+    np.testing.assert_allclose(y, np.round(y), atol=1e-7)
+    table = [
+        [_expected_sales(law, mean[j], var[j], k) for k in range(net.max_capacity + 1)]
+        for j in range(net.n_products)
+    ]
+    best = -np.inf
+    for alloc in itertools.product(range(net.max_capacity + 1), repeat=net.n_products):
+        if np.all(net.incidence @ np.array(alloc) <= net.capacities):
+            best = max(best, sum(net.fares[j] * table[j][k] for j, k in enumerate(alloc)))
+    assert res.value == pytest.approx(best, rel=1e-7, abs=1e-6)
+
+
+@pytest.mark.parametrize("seed", range(4))
+def test_pnlp_poisson_whole_allocation_is_below_the_optimum(seed):
+    """At a whole allocation the Poisson PNLP objective is the partitioned-allocation revenue
+    under the Poisson law, below that policy's revenue under the model's Bernoulli law (convex
+    order; our derivation), hence below the exact optimum (brute force)."""
+    net, dem = random_problem(700 + seed, n_legs=2, max_capacity=3, n_products=4, n_periods=10)
+    exact = brute_force_values(net, dem)[0][tuple(int(c) for c in net.capacities)]
+    res = get_solver("pnlp").solve(net, dem)
+    np.testing.assert_allclose(res["allocation"], np.round(res["allocation"]), atol=1e-7)
+    assert res.value <= exact + 1e-9
+
+
+# ----------------------------------------------------------------------------- RLP and PH
+def test_ph_and_rlp_values_are_means_of_scipy_hindsight_lps():
+    net, dem = small_problem()
+    t, x = 3, np.array([2, 1, 3])
+    state = BookingState(t, tuple(int(v) for v in x))
+    draws = dem.sample_demand_to_come(40, 11, t)
+    ref = np.array([-_scipy_dlp(net, x.astype(float), d.astype(float)).fun for d in draws])
+    for method in ("ph", "rlp"):
+        res = get_solver(method, samples=40).solve(net, dem, state=state, seed=11)
+        assert res.value == pytest.approx(ref.mean(), rel=1e-9)
+        assert res.stderr == pytest.approx(ref.std(ddof=1) / np.sqrt(40), rel=1e-9)
+
+
+def test_rlp_bid_prices_are_averaged_sample_duals():
+    net, dem = small_problem()
+    res = get_solver("rlp", samples=30, dual="min").solve(net, dem, seed=4)
+    draws = dem.sample_demand_to_come(30, 4, 0).astype(float)
+    model = NetworkLP(net, dual="min")
+    mean = np.mean([model.solve(net.capacities, d).bid_price for d in draws], axis=0)
+    np.testing.assert_allclose(res.bid_prices, mean, atol=1e-9)
+    assert "dual='min'" in res.to_dataset().attrs["message"]
+
+
+@pytest.mark.parametrize("method", ["ph", "rlp"])
+def test_stderr_shrinks_like_one_over_sqrt_samples_and_seeds_agree(method):
+    scen = read_hub_spoke(instance_path("rm_200_4_1.2_4.0"))
+    net, dem = scen.network, scen.demand
+    small = get_solver(method, samples=100).solve(net, dem, seed=1)
+    large = get_solver(method, samples=1600).solve(net, dem, seed=1)
+    other = get_solver(method, samples=1600).solve(net, dem, seed=2)
+    # 16x the samples: the standard error falls by about 4 (sample std. devs. differ a little)
+    assert 3.0 <= small.stderr / large.stderr <= 5.3
+    gap = abs(large.value - other.value)
+    assert gap <= 3.0 * np.hypot(large.stderr, other.stderr)
+    # Topaloglu (2009), Table 1: PH lies below the published DLP bound of this instance
+    assert large.value <= DLP_BOUND["rm_200_4_1.2_4.0"] + 3 * large.stderr
+
+
+@pytest.mark.parametrize("method", ["ph", "rlp", "pnlp"])
+def test_time_limit_reported_for_every_method(method):
+    scen = read_hub_spoke(instance_path("rm_200_4_1.6_8.0"))
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        res = get_solver(method, time_limit=1e-9).solve(scen.network, scen.demand, seed=0)
+    assert res.status == "iteration_limit"
+    assert np.isnan(res.value)
+    assert "time_limit" in res.to_dataset().attrs["message"]
+    assert any("time_limit" in str(w.message) for w in caught)
+
+
+@pytest.mark.parametrize("method", ["ph", "rlp", "pnlp"])
+def test_solver_failure_raises_with_advice(method, monkeypatch):
+    import rmkit.lp_model as lpm
+    import rmkit.solvers.pnlp as pnlp
+
+    monkeypatch.setattr(lpm, "map_status", lambda status: "error")
+    monkeypatch.setattr(pnlp, "map_status", lambda status: "error")
+    net, dem = small_problem()
+    with pytest.raises(SolverError, match="check that capacities"):
+        get_solver(method).solve(net, dem, seed=0)
+
+
+def test_bad_samples_are_refused_with_the_template():
+    net, dem = small_problem()
+    for method in ("ph", "rlp"):
+        with pytest.raises(InputError, match="'samples' parameter of .* must be an integer >= 2"):
+            get_solver(method, samples=1).solve(net, dem)
+    with pytest.raises(InputError, match="'law'"):
+        get_solver("pnlp", law="gamma").solve(net, dem)
