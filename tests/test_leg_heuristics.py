@@ -60,6 +60,20 @@ def test_tvr_emsr_b_levels():
     np.testing.assert_allclose(y, raw, rtol=1e-12)
 
 
+def test_emsr_b_running_maximum_where_the_raw_formula_dips():
+    """Documented deviation: a raw EMSR-b level below the one inside it is lifted to it.
+
+    Fares 100, 50, 49.99 with a very uncertain middle class (mean 1000, sd 1000): the raw level
+    of the top two classes is 1010 + 1000.05 z_{1 - 49.99/50.49} < 0 (by hand with scipy), which
+    nested limits cannot use, so rmkit protects y_0 = 10 for both nests.
+    """
+    fares, means, sds = [100.0, 50.0, 49.99], [10.0, 1000.0, 5.0], [1.0, 1000.0, 1.0]
+    fbar = (100.0 * 10 + 50.0 * 1000) / 1010
+    raw = 1010 + np.hypot(1.0, 1000.0) * norm.ppf(1 - 49.99 / fbar)
+    assert raw < 0
+    np.testing.assert_allclose(emsr_b(fares, means, sds), [10.0, 10.0])
+
+
 def test_tvr_first_level_is_littlewood():
     """Talluri & van Ryzin (2004), ch. 2: y1 is Littlewood's level of the top two classes [formula]."""
     y1 = littlewood(1050.0, 567.0, 17.3, 5.8)
@@ -348,3 +362,50 @@ def test_negative_capacity_is_refused():
         nested_revenue([300.0, 200.0], [[0.5, 0.5], [0.5, 0.4]], 3, [1])
     with pytest.raises(InputError, match=r"protection\[0\]: .*whole number >= 0, got 1.5"):
         nested_revenue([300.0, 200.0], [[0.5, 0.5], [0.5, 0.5]], 3, [1.5])
+
+
+# ------------------------------------------------------------------ the emsrb-heuristic solver
+def two_fare_leg() -> tuple:
+    """One leg of 20 seats, fares 100 and 60 requested with chance 0.3 and 0.5 in each of 40 periods."""
+    from rmkit import DemandModel, Network
+
+    net = Network.build(legs=[("L", 20)], products=[("hi", 100.0, ["L"]), ("lo", 60.0, ["L"])])
+    return net, DemandModel(np.tile([0.3, 0.5], (40, 1)))
+
+
+@pytest.mark.parametrize("law", ["poisson", "normal"])
+def test_heuristic_table_is_littlewoods_seat_value(law):
+    """Two classes: the bid price of a protected seat is 100 P(D_hi >= x) (Littlewood 1972).
+
+    D_hi counts the high-fare requests after the current period (the table's convention).
+    """
+    from rmkit import get_solver
+
+    net, dem = two_fare_leg()
+    res = get_solver("emsrb-heuristic", law=law).solve(net, dem)
+    table = res["bid_price_table"][:, :, 0]
+    for t in (0, 10, 25, 38):
+        n = 40 - 1 - t
+        mean, sd = 0.3 * n, np.sqrt(n * 0.3 * 0.7)
+        x = np.arange(1, 21)
+        if law == "poisson":
+            reach = poisson.sf(x - 1, mean)
+        else:
+            reach = norm.sf(x - 0.5, mean, sd)  # continuity correction (module docstring)
+        protected = 100.0 * reach > 60.0
+        np.testing.assert_allclose(table[t, 1:][protected], 100.0 * reach[protected], rtol=1e-12)
+        assert np.all(table[t, 1:][~protected] <= 60.0)
+    assert np.all(table[-1, 1:] == 0.0) and np.all(np.isinf(table[:, 0]))
+    np.testing.assert_array_equal(res.bid_prices, table[0, [20]])
+
+
+def test_heuristic_multiplier_scales_every_bid_price():
+    from rmkit import BookingState, get_solver
+
+    net, dem = two_fare_leg()
+    state = BookingState(period=5, capacity=(12,))
+    one = get_solver("emsrb-heuristic").solve(net, dem, state=state)
+    two = get_solver("emsrb-heuristic", multiplier=2.5).solve(net, dem, state=state)
+    finite = np.isfinite(one["bid_price_table"])
+    np.testing.assert_allclose(two["bid_price_table"][finite], 2.5 * one["bid_price_table"][finite])
+    assert two["bid_price_table"].shape[0] == 35 and two.bid_prices[0] == 2.5 * one.bid_prices[0]
