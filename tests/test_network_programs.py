@@ -394,3 +394,33 @@ def test_bad_samples_are_refused_with_the_template():
             get_solver(method, samples=1).solve(net, dem)
     with pytest.raises(InputError, match="'law'"):
         get_solver("pnlp", law="gamma").solve(net, dem)
+
+
+def test_huge_requests_are_refused_up_front_with_the_estimate(monkeypatch):
+    from rmkit.errors import ProblemTooLargeError
+    from rmkit.solvers import pnlp
+
+    net, dem = small_problem()
+    with pytest.raises(ProblemTooLargeError, match=r"GiB .* use fewer samples"):
+        get_solver("ph", samples=10**9).solve(net, dem)
+    with monkeypatch.context() as patch:
+        patch.setattr(pnlp, "MAX_UNITS", 5)  # small_problem needs more unit columns than 5
+        with pytest.raises(ProblemTooLargeError, match="unit columns"):
+            get_solver("pnlp").solve(net, dem)
+    big = Network.build([("L", 10**7)], [(f"P{j}", 100.0 + j, ["L"]) for j in range(3)])
+    light = DemandModel(np.full((1, 3), 0.3))
+    # ten million seats but little demand: only the useful units are listed, so it solves
+    res = get_solver("pnlp").solve(big, light)
+    assert res.status == "optimal" and res.bid_prices[0] == 0.0
+
+
+def test_a_solution_failing_its_recheck_is_downgraded_with_a_warning(monkeypatch):
+    """scipy-style re-check: an 'optimal' answer that breaks a constraint is not passed on as
+    optimal (simulated by a re-check that reports a violation of 0.5 seats)."""
+    monkeypatch.setattr(NetworkLP, "_violations", lambda self, xs, ds, ys: np.full(len(ys), 0.5))
+    net, dem = small_problem()
+    with pytest.warns(RuntimeWarning, match="violates a constraint by 0.5"):
+        res = get_solver("dlp").solve(net, dem)
+    assert res.status == "optimal_inaccurate"
+    batch = NetworkLP(net).solve_many(net.capacities, dem.sample_demand_to_come(3, 0))
+    assert batch.statuses == ("optimal_inaccurate",) * 3

@@ -54,6 +54,7 @@ from typing import Any
 
 import numpy as np
 
+from rmkit.errors import ProblemTooLargeError
 from rmkit.lp_model import (
     FEASIBILITY_TOL,
     failure_message,
@@ -67,6 +68,7 @@ from rmkit.solvers.dlp import TIME_LIMIT_RULE
 
 LAWS = ("poisson", "normal")
 NEGLIGIBLE = 1e-12  # increments below this add nothing to the objective
+MAX_UNITS = 5_000_000  # unit columns HiGHS is asked to hold (a few hundred MB)
 
 
 def unit_increments(
@@ -77,7 +79,8 @@ def unit_increments(
 
     out: list[np.ndarray] = []
     base = np.zeros(mean.size)
-    for j, (mu, v, k) in enumerate(zip(mean, var, max_units, strict=True)):
+    units = np.minimum(max_units, useful_units(law, mean, var))
+    for j, (mu, v, k) in enumerate(zip(mean, var, units, strict=True)):
         u = np.arange(1, int(k) + 1, dtype=np.float64)
         if law == "poisson":
             delta = poisson.sf(u - 1, mu)  # P(D >= u) = P(D > u - 1)
@@ -96,6 +99,25 @@ def unit_increments(
         keep = int(np.searchsorted(-delta, -NEGLIGIBLE, side="right"))
         out.append(delta[:keep])
     return out, base
+
+
+def useful_units(law: str, mean: np.ndarray, var: np.ndarray) -> np.ndarray:
+    """Per product, a unit count past which every increment is below :data:`NEGLIGIBLE`."""
+    from scipy.stats import norm, poisson
+
+    if law == "poisson":
+        tail = poisson.isf(NEGLIGIBLE, mean)  # P(D > tail) <= NEGLIGIBLE
+    else:
+        tail = mean + norm.isf(NEGLIGIBLE) * np.sqrt(var)
+    return np.ceil(np.nan_to_num(tail, nan=0.0)) + 2
+
+
+def check_size(n_units: int) -> None:
+    if n_units > MAX_UNITS:
+        raise ProblemTooLargeError(
+            f"pnlp: the piecewise-linear program would have {n_units:,} unit columns, above the "
+            f"limit of {MAX_UNITS:,}; solve from a state with fewer seats left or use 'dlp'"
+        )
 
 
 @register
@@ -127,6 +149,7 @@ class ProbabilisticNLP(Solver):
         # At least one unit per product even on a closed leg, so that leg's row is not empty
         # and its dual is the price a first seat would have to beat, not a meaningless 0.
         max_units = np.maximum(np.where(a > 0, x[:, None], np.inf).min(axis=0), 1)
+        check_size(int(np.minimum(max_units, useful_units(params["law"], mean, var)).sum()))
         deltas, base = unit_increments(params["law"], mean, var, max_units)
         if not any(d.size for d in deltas):
             return SolveOutput(

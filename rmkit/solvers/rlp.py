@@ -25,15 +25,29 @@ from typing import Any
 
 import numpy as np
 
+from rmkit.errors import ProblemTooLargeError
 from rmkit.lp_model import DUAL_CHOICES, LPBatch, raise_or_warn, time_limit_ok
 from rmkit.solver import Param, Problem, SolveOutput, Solver, Tags, one_of, register
 from rmkit.solvers.dlp import DUAL_RULE, TIME_LIMIT_RULE, dual_message
 
-DEFAULT_SAMPLES = 200  # our default: a standard error near 1% of the bound on the benchmarks
+DEFAULT_SAMPLES = 200  # our choice: standard error under 1% of the value on the benchmarks tried
+MAX_SAMPLE_MEMORY_GB = 2.0
 
 
 def at_least_two(v: Any) -> bool:
     return isinstance(v, (int, np.integer)) and not isinstance(v, bool) and v >= 2
+
+
+def check_sample_memory(samples: int, n_periods: int, network) -> None:
+    """Refuse up front when the sampled request streams and solutions would not fit."""
+    per_sample = 12 * n_periods + 24 * network.n_products + 8 * network.n_legs  # bytes
+    gigabytes = samples * per_sample / 2**30
+    if gigabytes > MAX_SAMPLE_MEMORY_GB:
+        raise ProblemTooLargeError(
+            f"samples: {samples:,} samples over {n_periods} periods need about {gigabytes:.1f} "
+            f"GiB for the request streams and LP solutions, above the limit of "
+            f"{MAX_SAMPLE_MEMORY_GB:g} GiB; use fewer samples"
+        )
 
 
 def solve_sampled_lps(
@@ -47,6 +61,8 @@ def solve_sampled_lps(
 ) -> LPBatch:
     """The network LP of ``samples`` sampled demand-to-come vectors, warm-started in turn."""
     from rmkit.lp_model import NetworkLP
+
+    check_sample_memory(int(samples), problem.demand.n_periods, problem.network)
 
     draws = problem.demand.sample_demand_to_come(int(samples), int(seed or 0), problem.period)
     model = NetworkLP(problem.network, dual=dual, time_limit=time_limit)
