@@ -27,7 +27,10 @@ used. ``dual="highs"`` returns HiGHS's dual as is (a vertex of the optimal dual 
 second small LP over the optimal face
 ``{A'pi + sigma >= f, x'pi + d'sigma <= z(x, d), 0 <= pi_i <= max fare on leg i, 0 <= sigma <= f}``.
 The caps do not change the smallest dual and keep the largest finite (a leg with no seats left
-would otherwise accept any price); every solution reports which choice was made.
+would otherwise accept any price); every solution reports which choice was made. With
+``"highs"`` the dual of a degenerate program can depend on the basis the solve started from, so
+a warm-started model may return a different (equally optimal) dual than a fresh one; the
+``"min"``/``"max"`` sums do not depend on that history.
 
 Statuses map HiGHS's model status onto :data:`rmkit.results.STATUSES`; a returned optimum is
 re-checked against the constraints and downgraded to ``optimal_inaccurate`` when it violates them.
