@@ -100,10 +100,13 @@ class LPBatch:
         return all(s in ("optimal", "optimal_inaccurate") for s in self.statuses)
 
     def first_problem(self) -> tuple[int, str, str] | None:
-        """``(index, status, message)`` of the first solve that is not optimal, else ``None``."""
-        for k, s in enumerate(self.statuses):
-            if s != "optimal":
-                return k, s, self.messages[k]
+        """``(index, status, message)`` of the first failed solve (no optimum), else of the
+        first inaccurate one, else ``None``."""
+        for bad in (lambda s: s not in ("optimal", "optimal_inaccurate"),
+                    lambda s: s == "optimal_inaccurate"):
+            for k, s in enumerate(self.statuses):
+                if bad(s):
+                    return k, s, self.messages[k]
         return None
 
 
@@ -113,15 +116,19 @@ def quiet_highs():
     import highspy
 
     sys.stdout.flush()
-    saved = os.dup(1)
-    null = os.open(os.devnull, os.O_WRONLY)
     try:
-        os.dup2(null, 1)
+        saved = os.dup(1)
+    except OSError:  # no file descriptor 1 (a detached process): nothing to protect
         h = highspy.Highs()
-    finally:
-        os.dup2(saved, 1)
-        os.close(saved)
-        os.close(null)
+    else:
+        null = os.open(os.devnull, os.O_WRONLY)
+        try:
+            os.dup2(null, 1)
+            h = highspy.Highs()
+        finally:
+            os.dup2(saved, 1)
+            os.close(saved)
+            os.close(null)
     h.setOptionValue("output_flag", False)
     # These LPs are small: waking HiGHS's worker threads costs more than they save (a warm
     # re-solve ran about 2.5x faster with one thread on the 8-spoke instances).

@@ -424,3 +424,17 @@ def test_a_solution_failing_its_recheck_is_downgraded_with_a_warning(monkeypatch
     assert res.status == "optimal_inaccurate"
     batch = NetworkLP(net).solve_many(net.capacities, dem.sample_demand_to_come(3, 0))
     assert batch.statuses == ("optimal_inaccurate",) * 3
+
+
+def test_batch_failure_wins_over_an_earlier_inaccurate_solve():
+    from rmkit.lp_model import LPBatch
+    from rmkit.solvers.rlp import batch_failure
+
+    nan = np.full((3, 1), np.nan)
+    batch = LPBatch(
+        np.zeros(3), nan, nan, ("optimal_inaccurate", "optimal", "iteration_limit"),
+        ("off by 1e-3", "", "stopped at time_limit"), "highs", np.zeros(3, dtype=np.int64),
+    )
+    assert batch.first_problem() == (2, "iteration_limit", "stopped at time_limit")
+    with pytest.warns(RuntimeWarning, match="sample 2"):
+        assert batch_failure("rlp", batch) == "iteration_limit"
