@@ -21,7 +21,8 @@ Layout of the work, chosen so the inner loop is long, contiguous and branch-free
 * The decision bit ``f >= Vn(s) - Vn(s - d_j)`` (ties accept) is or-ed straight into one
   unsigned word per state and period (uint8 up to 8 products, uint16 up to 16, ...), whose
   little-endian bytes are the ``(K, S, ceil(n/8))`` decision bytes.
-* Only two value layers live at once. In the parallel kernel every period's flat range is cut
+* Only two value layers live at once, the two halves of one array (period k in half k % 2).
+  In the parallel kernel every period's flat range is cut
   into one chunk per thread (numba ``prange``); chunks write disjoint states and each state sees
   the same operations in the same order, so results do not depend on the thread count.
 """
@@ -32,141 +33,126 @@ import numpy as np
 from numba import njit, prange
 
 
-@njit(cache=True, inline="always")
-def chunk_step(
-    k, a, b, tile, nxt, cur, prob, fare, offsets, masked, run_start, run_stop, run_ptr,
-    mask, word_mask, words, word_bit, keep_bits, cursor,
+@njit(cache=True)
+def sweep(
+    k_hi, k_lo, a, b, tile, layers, prob, fare, offsets, masked, run_start, run_stop, run_ptr,
+    mask, word_mask, words, word_bit, keep_bits, record_probe, probe, probe_out, cursor,
 ):
-    """One period's update of the flat states ``a .. b-1`` (values and, if kept, decisions).
+    """Periods ``k_hi`` down to ``k_lo`` on the flat states ``a .. b-1``.
 
-    The range is swept in tiles of ``tile`` states so the tile of ``cur`` stays in the L1 cache
-    while every product updates it. Decisions are or-ed into ``words[k, s * n_words + w]``
-    (unsigned words of the dtype of ``word_bit``; product j sets ``word_bit[j]`` in word
-    ``j // bits_per_word``), which must be zero on entry. ``cursor`` (n,) int64 is scratch.
-    Indices ``a``, ``b``, ``tile``, ``offsets``, ``run_start``, ``run_stop`` are uint64.
+    ``layers`` is ``(2 S,)``: the values of period k live at offset ``(k % 2) * S``, so period
+    k reads the other half and no array is ever swapped or re-bound (no reference counting in
+    the loop). The range is swept in tiles of ``tile`` states so the tile being updated stays in
+    the L1 cache while every product updates it. Decisions are or-ed into
+    ``words[k, s * n_words + j // bits_per_word]`` (unsigned words of the dtype of ``word_bit``,
+    zero on entry). When ``record_probe``, ``probe_out[k, q]`` receives ``V_{k+1}[probe[q]]``.
+    ``cursor`` (n,) int64 is scratch. Indices ``a``, ``b``, ``tile``, ``offsets``, ``run_start``,
+    ``run_stop`` are uint64.
     """
     n_products = prob.shape[1]
-    n_words = np.uint64(words.shape[1] // nxt.size)
+    n_states = np.uint64(layers.size // 2)
+    n_words = np.uint64(words.shape[1]) // n_states
     per_word = 8 * word_bit.itemsize
-    for j in range(n_products):
-        cursor[j] = run_ptr[j]
-    ta = a
-    while ta < b:
-        tb = min(ta + tile, b)
-        for s in range(ta, tb):
-            cur[s] = nxt[s]
+    for k in range(k_hi, k_lo - 1, -1):
+        co = np.uint64(k % 2) * n_states  # this period's values
+        no = np.uint64((k + 1) % 2) * n_states  # the next period's
+        if record_probe:
+            for q in range(probe.size):
+                probe_out[k, q] = layers[no + np.uint64(probe[q])]
         for j in range(n_products):
-            p = prob[k, j]
-            f = fare[k, j]
-            d = offsets[j]
-            bit = word_bit[j]
-            zero = bit ^ bit
-            w = np.uint64(j // per_word)
-            r = cursor[j]
-            stop = run_ptr[j + 1]
-            while r < stop and run_stop[r] <= ta:
-                r += 1
-            cursor[j] = r
-            while r < stop and run_start[r] < tb:
-                lo = max(run_start[r], ta)
-                hi = min(run_stop[r], tb)
-                r += 1
-                if not keep_bits:
-                    if masked[j]:
+            cursor[j] = run_ptr[j]
+        ta = a
+        while ta < b:
+            tb = min(ta + tile, b)
+            for s in range(ta, tb):
+                layers[co + s] = layers[no + s]
+            for j in range(n_products):
+                p = prob[k, j]
+                f = fare[k, j]
+                nd = no - offsets[j]  # layers[nd + s] = V_{k+1}(s - d_j)
+                bit = word_bit[j]
+                zero = bit ^ bit
+                w = np.uint64(j // per_word)
+                r = cursor[j]
+                stop = run_ptr[j + 1]
+                while r < stop and run_stop[r] <= ta:
+                    r += 1
+                cursor[j] = r
+                while r < stop and run_start[r] < tb:
+                    lo = max(run_start[r], ta)
+                    hi = min(run_stop[r], tb)
+                    r += 1
+                    if not keep_bits:
+                        if masked[j]:
+                            for s in range(lo, hi):
+                                gain = f - (layers[no + s] - layers[nd + s])
+                                layers[co + s] += p * (max(gain, 0.0) * mask[s])
+                        else:
+                            for s in range(lo, hi):
+                                gain = f - (layers[no + s] - layers[nd + s])
+                                layers[co + s] += p * max(gain, 0.0)
+                    elif n_words == 1:
+                        if masked[j]:
+                            for s in range(lo, hi):
+                                gain = f - (layers[no + s] - layers[nd + s])
+                                layers[co + s] += p * (max(gain, 0.0) * mask[s])
+                                words[k, s] |= (bit if gain >= 0.0 else zero) & word_mask[s]
+                        else:
+                            for s in range(lo, hi):
+                                gain = f - (layers[no + s] - layers[nd + s])
+                                layers[co + s] += p * max(gain, 0.0)
+                                words[k, s] |= bit if gain >= 0.0 else zero
+                    else:  # more than 64 products: strided words
                         for s in range(lo, hi):
-                            cur[s] += p * (max(f - (nxt[s] - nxt[s - d]), 0.0) * mask[s])
-                    else:
-                        for s in range(lo, hi):
-                            cur[s] += p * max(f - (nxt[s] - nxt[s - d]), 0.0)
-                elif n_words == 1:
-                    row = words[k]
-                    if masked[j]:
-                        for s in range(lo, hi):
-                            gain = f - (nxt[s] - nxt[s - d])
-                            cur[s] += p * (max(gain, 0.0) * mask[s])
-                            row[s] |= (bit if gain >= 0.0 else zero) & word_mask[s]
-                    else:
-                        for s in range(lo, hi):
-                            gain = f - (nxt[s] - nxt[s - d])
-                            cur[s] += p * max(gain, 0.0)
-                            row[s] |= bit if gain >= 0.0 else zero
-                else:  # more than 64 products: strided words
-                    row = words[k]
-                    for s in range(lo, hi):
-                        gain = f - (nxt[s] - nxt[s - d])
-                        on = gain >= 0.0 and (not masked[j] or mask[s] != 0.0)
-                        cur[s] += p * (max(gain, 0.0) * mask[s]) if masked[j] else p * max(
-                            gain, 0.0
-                        )
-                        row[s * n_words + w] |= bit if on else zero
-        ta = tb
-
-
-@njit(cache=True)
-def _swap(a, b):
-    for s in range(a.size):
-        tmp = a[s]
-        a[s] = b[s]
-        b[s] = tmp
+                            gain = f - (layers[no + s] - layers[nd + s])
+                            m = mask[s] if masked[j] else 1.0
+                            layers[co + s] += p * (max(gain, 0.0) * m)
+                            if gain >= 0.0 and m != 0.0:
+                                words[k, s * n_words + w] |= bit
+            ta = tb
 
 
 @njit(cache=True, parallel=True)
 def network_values(
     prob, fare, offsets, masked, run_start, run_stop, run_ptr, mask, word_mask,
-    values, spare, words, word_bit, keep_bits, probe, probe_out, tile, n_chunks,
+    layers, words, word_bit, keep_bits, probe, probe_out, tile, n_chunks,
 ):
     """Backward pass over ``K = prob.shape[0]`` periods, each period split into ``n_chunks``.
 
-    On entry ``values`` holds the terminal layer (zeros); on exit it holds the first period's
-    values and ``spare`` the second period's (``V_{t0+1}``). ``words`` is ``(K, S * n_words)``
-    zeros of an unsigned dtype, receiving the decisions when ``keep_bits`` (see
-    :func:`chunk_step`); ``word_mask`` (S,) of that dtype is all ones where ``x_last >= 1``;
-    ``probe_out[k, q]`` receives ``V_{t0+k+1}[probe[q]]``; ``tile`` (uint64) the states swept
-    at a time.
+    ``layers`` is ``(2 S,)`` zeros on entry; on exit its first half holds the first period's
+    values and its second half the second period's (``V_{t0+1}``). ``words`` is
+    ``(K, S * n_words)`` zeros of an unsigned dtype, receiving the decisions when ``keep_bits``
+    (see :func:`sweep`); ``word_mask`` (S,) of that dtype is all ones where ``x_last >= 1``;
+    ``probe_out[k, q]`` receives ``V_{t0+k+1}[probe[q]]``; ``tile`` (uint64) is the number of
+    states swept at a time.
     """
-    n_periods = prob.shape[0]
-    n_states = values.size
-    cursor = np.empty((n_chunks, prob.shape[1]), dtype=np.int64)
-    nxt = values
-    cur = spare
+    n_periods, n_products = prob.shape
+    n_states = layers.size // 2
+    cursor = np.empty((n_chunks, n_products), dtype=np.int64)
     for k in range(n_periods - 1, -1, -1):
-        for q in range(probe.size):
-            probe_out[k, q] = nxt[probe[q]]
         for c in prange(n_chunks):
             a = np.uint64((n_states * c) // n_chunks)
             b = np.uint64((n_states * (c + 1)) // n_chunks)
-            chunk_step(
-                k, a, b, tile, nxt, cur, prob, fare, offsets, masked, run_start, run_stop,
-                run_ptr, mask, word_mask, words, word_bit, keep_bits, cursor[c],
+            sweep(
+                k, k, a, b, tile, layers, prob, fare, offsets, masked, run_start, run_stop,
+                run_ptr, mask, word_mask, words, word_bit, keep_bits, c == 0, probe, probe_out,
+                cursor[c],
             )
-        nxt, cur = cur, nxt
-    if n_periods % 2 == 1:  # the latest layer sits in `spare`: swap contents back
-        _swap(values, spare)
 
 
 @njit(cache=True)
 def network_values_serial(
     prob, fare, offsets, masked, run_start, run_stop, run_ptr, mask, word_mask,
-    values, spare, words, word_bit, keep_bits, probe, probe_out, tile,
+    layers, words, word_bit, keep_bits, probe, probe_out, tile,
 ):
-    """:func:`network_values` on one thread (no parallel launch per period: small grids)."""
-    n_periods = prob.shape[0]
-    n_states = values.size
-    nxt = values
-    cur = spare
-    a = np.uint64(0)
-    b = np.uint64(n_states)
-    cursor = np.empty(prob.shape[1], dtype=np.int64)
-    for k in range(n_periods - 1, -1, -1):
-        for q in range(probe.size):
-            probe_out[k, q] = nxt[probe[q]]
-        chunk_step(
-            k, a, b, tile, nxt, cur, prob, fare, offsets, masked, run_start, run_stop, run_ptr,
-            mask, word_mask, words, word_bit, keep_bits, cursor,
-        )
-        nxt, cur = cur, nxt
-    if n_periods % 2 == 1:
-        _swap(values, spare)
+    """:func:`network_values` on one thread: one call sweeps every period (small grids)."""
+    n_periods, n_products = prob.shape
+    cursor = np.empty(n_products, dtype=np.int64)
+    sweep(
+        n_periods - 1, 0, np.uint64(0), np.uint64(layers.size // 2), tile, layers, prob, fare,
+        offsets, masked, run_start, run_stop, run_ptr, mask, word_mask, words, word_bit,
+        keep_bits, True, probe, probe_out, cursor,
+    )
 
 
 @njit(cache=True)

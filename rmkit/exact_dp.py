@@ -314,6 +314,59 @@ def _as_decision_bits(words: np.ndarray, n_states: int, n_products: int) -> np.n
     return raw if raw.shape[2] == n_bytes else np.ascontiguousarray(raw[:, :, :n_bytes])
 
 
+@dataclass
+class BackwardPass:
+    """The kernel's inputs and zeroed outputs for one backward pass (see :func:`prepare`)."""
+
+    layout: _Layout
+    args: tuple
+    layers: np.ndarray  # (2, S): V at the first period solved, and at the next
+    words: np.ndarray
+    probe_out: np.ndarray
+
+    def run(self, parallel: bool) -> None:
+        """Run the kernel once (outputs must be zero, as :func:`prepare` leaves them)."""
+        from rmkit import _dp_kernels as kern
+
+        if parallel:
+            kern.network_values(*self.args, _thread_count())
+        else:
+            kern.network_values_serial(*self.args)
+
+    def reset(self) -> None:
+        """Zero the outputs again, so the pass can be run (and timed) once more."""
+        for a in (self.layers, self.words, self.probe_out):
+            a.fill(0)
+
+
+def prepare(
+    network: Network,
+    demand: DemandModel,
+    period: int,
+    keep_decisions: bool,
+    probe: np.ndarray,
+    tile: int = DEFAULT_TILE,
+) -> BackwardPass:
+    """Allocate and lay out one backward pass (no size check: callers check first)."""
+    lay = _layout(network)
+    prob = np.ascontiguousarray(demand.probabilities[period:])
+    fare = np.ascontiguousarray(np.broadcast_to(network.fares, prob.shape))
+    n_k = prob.shape[0]
+    word = _word_dtype(network.n_products)
+    per_word = 8 * word.itemsize
+    n_words = -(-network.n_products // per_word)
+    words = np.zeros((n_k, lay.n_states * n_words) if keep_decisions else (1, 1), dtype=word)
+    shift = (np.arange(network.n_products) % per_word).astype(np.uint64)
+    word_bit = (np.ones(network.n_products, dtype=np.uint64) << shift).astype(word)
+    word_mask = np.where(lay.mask > 0, np.iinfo(word).max, 0).astype(word)
+    layers = np.zeros((2, lay.n_states))
+    probe_out = np.zeros((n_k, probe.size))
+    args = (prob, fare, lay.offsets, lay.masked, lay.run_start, lay.run_stop, lay.run_ptr,
+            lay.mask, word_mask, layers.reshape(-1), words, word_bit, keep_decisions, probe,
+            probe_out, np.uint64(tile))
+    return BackwardPass(lay, args, layers, words, probe_out)
+
+
 def solve_network_dp(
     network: Network,
     demand: DemandModel,
@@ -338,40 +391,25 @@ def solve_network_dp(
     parallel
         Split each period over threads; ``None`` decides from the grid size and how busy the
         machine is (results are identical either way).
+    tile
+        States the kernel sweeps at a time (a cache-blocking size; results do not depend on it).
     """
-    from rmkit import _dp_kernels as kern
-
     check_compatible(network, demand)
     period = demand.check_period(period, "period")
     probe_idx = np.zeros(0, dtype=np.int64) if probe is None else np.asarray(probe, np.int64)
-    n_k = demand.n_periods - period
-    check_size(network, n_k, max_memory_gb, keep_decisions, probe_idx.size)
-    lay = _layout(network)
-    if probe_idx.size and (probe_idx.min() < 0 or probe_idx.max() >= lay.n_states):
-        raise InputError(f"probe: flat state indices must be in [0, {lay.n_states - 1}]")
-    prob = np.ascontiguousarray(demand.probabilities[period:])
-    fare = np.ascontiguousarray(np.broadcast_to(network.fares, prob.shape))
-    word = _word_dtype(network.n_products)
-    per_word = 8 * word.itemsize
-    n_words = -(-network.n_products // per_word)
-    words = np.zeros((n_k, lay.n_states * n_words) if keep_decisions else (1, 1), dtype=word)
-    shift = (np.arange(network.n_products) % per_word).astype(np.uint64)
-    word_bit = (np.ones(network.n_products, dtype=np.uint64) << shift).astype(word)
-    word_mask = np.where(lay.mask > 0, np.iinfo(word).max, 0).astype(word)
-    values = np.zeros(lay.n_states)
-    spare = np.zeros(lay.n_states)
-    probe_out = np.zeros((n_k, probe_idx.size))
-    args = (prob, fare, lay.offsets, lay.masked, lay.run_start, lay.run_stop, lay.run_ptr,
-            lay.mask, word_mask, values, spare, words, word_bit, keep_decisions, probe_idx,
-            probe_out, np.uint64(tile))
+    check_size(network, demand.n_periods - period, max_memory_gb, keep_decisions, probe_idx.size)
+    n_states = network.state_space_size
+    if probe_idx.size and (probe_idx.min() < 0 or probe_idx.max() >= n_states):
+        raise InputError(f"probe: flat state indices must be in [0, {n_states - 1}]")
+    if isinstance(tile, bool) or not isinstance(tile, (int, np.integer)) or tile < 1:
+        raise InputError(f"tile: must be a whole number >= 1, got {tile!r}")
+    bp = prepare(network, demand, period, keep_decisions, probe_idx, int(tile))
     if parallel is None:
-        parallel = _use_threads(lay.n_states, network.n_products)
-    if parallel:
-        kern.network_values(*args, _thread_count())
-    else:
-        kern.network_values_serial(*args)
-    bits = _as_decision_bits(words, lay.n_states, network.n_products) if keep_decisions else None
-    for a in (values, spare, bits, probe_out):
+        parallel = _use_threads(n_states, network.n_products)
+    bp.run(bool(parallel))
+    bits = _as_decision_bits(bp.words, n_states, network.n_products) if keep_decisions else None
+    values, spare = bp.layers  # period k's values sit in row k % 2, counting from `period`
+    for a in (values, spare, bits, bp.probe_out):
         if a is not None:
             a.setflags(write=False)
     return NetworkDP(
@@ -381,9 +419,9 @@ def solve_network_dp(
         values=values,
         next_values=spare,
         decision_bits=bits,
-        strides=lay.strides,
+        strides=bp.layout.strides,
         probe=probe_idx,
-        probe_values=probe_out,
+        probe_values=bp.probe_out,
     )
 
 

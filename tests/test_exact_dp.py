@@ -173,13 +173,12 @@ def test_kernels_match_their_py_func():
     probe = np.array([0, 5, s - 1])
 
     def run(fn, *extra):
-        values, spare = np.zeros(s), np.zeros(s)
+        layers = np.zeros(2 * s)
         words = np.zeros((4, s), np.uint8)
         out = np.zeros((4, 3))
         fn(prob, fare, lay.offsets, lay.masked, lay.run_start, lay.run_stop, lay.run_ptr,
-           lay.mask, word_mask, values, spare, words, word_bit, True, probe, out, np.uint64(7),
-           *extra)
-        return values, spare, words, out
+           lay.mask, word_mask, layers, words, word_bit, True, probe, out, np.uint64(7), *extra)
+        return layers, words, out
 
     compiled = run(kern.network_values_serial)
     for other in (run(kern.network_values_serial.py_func), run(kern.network_values, 2),
@@ -192,7 +191,7 @@ def test_kernels_match_their_py_func():
     for fn in (kern.visit_probabilities, kern.visit_probabilities.py_func):
         out = np.zeros((3, s))
         fn(prob, lay.offsets, lay.masked, lay.run_start, lay.run_stop, lay.run_ptr, lay.umask,
-           compiled[2].reshape(4, s, 1), s - 1, keep, out, np.zeros(s), np.zeros(s))
+           compiled[1].reshape(4, s, 1), s - 1, keep, out, np.zeros(s), np.zeros(s))
         outs.append(out)
     np.testing.assert_array_equal(*outs)
 
