@@ -172,12 +172,11 @@ def iterate_displacement(
 class LegClasses:
     """The nesting classes of one leg.
 
-    ``fares[c]`` strictly decreasing; ``members`` ``(n_products, k)`` 0/1 (product j in class c);
-    ``bucket[j]`` the class of product j, -1 when it has none on this leg.
+    ``fares[c]`` strictly decreasing; ``bucket[j]`` the class of product j, -1 when it has none
+    on this leg.
     """
 
     fares: np.ndarray
-    members: np.ndarray
     bucket: np.ndarray
 
     @property
@@ -186,15 +185,23 @@ class LegClasses:
 
     def class_totals(self, per_product: np.ndarray) -> np.ndarray:
         """Sum a ``(..., n_products)`` quantity (means, variances) over each class's members."""
-        return per_product @ self.members
+        v = np.asarray(per_product, dtype=np.float64)
+        if self.n_classes == 0:
+            return np.zeros((*v.shape[:-1], 0))
+        order = np.argsort(np.where(self.bucket >= 0, self.bucket, self.n_classes), kind="stable")
+        order = order[: np.count_nonzero(self.bucket >= 0)]
+        starts = np.searchsorted(self.bucket[order], np.arange(self.n_classes))
+        # index sums, not a 0/1 matrix product: no BLAS call, exact, cheap for tall tables
+        return np.add.reduceat(v[..., order], starts, axis=-1)
 
     def class_means(self, per_product: np.ndarray, weights: np.ndarray) -> np.ndarray:
         """``(k,)`` weighted mean of a per-product quantity over each class (plain if no weight)."""
         v = np.nan_to_num(np.asarray(per_product, dtype=np.float64))
-        w = self.members * weights[:, None]
-        wsum = w.sum(axis=0)
-        plain = (self.members * v[:, None]).sum(axis=0) / np.maximum(self.members.sum(axis=0), 1)
-        weighted = (w * v[:, None]).sum(axis=0) / np.where(wsum > 0, wsum, 1.0)
+        w = np.where(self.bucket >= 0, weights, 0.0)
+        count = self.class_totals(np.ones_like(v))
+        wsum = self.class_totals(w)
+        plain = self.class_totals(v) / np.maximum(count, 1)
+        weighted = self.class_totals(w * v) / np.where(wsum > 0, wsum, 1.0)
         return np.where(wsum > 0, weighted, plain)
 
 
@@ -207,12 +214,10 @@ def leg_classes(counted: np.ndarray, weights: np.ndarray, n_buckets: int | None 
     order = open_[np.argsort(-g[open_], kind="stable")]
     labels = group_fares(g[order], weights[order], n_buckets)
     k = int(labels.max()) + 1 if labels.size else 0
-    members = np.zeros((g.size, k))
-    members[order, labels] = 1.0
     bucket = np.full(g.size, -1, dtype=np.int64)
     bucket[order] = labels
-    shell = LegClasses(fares=np.zeros(k), members=members, bucket=bucket)
-    return LegClasses(fares=shell.class_means(g, weights), members=members, bucket=bucket)
+    shell = LegClasses(fares=np.zeros(k), bucket=bucket)
+    return LegClasses(fares=shell.class_means(g, weights), bucket=bucket)
 
 
 # ------------------------------------------------------------------ what the leg solvers share

@@ -459,7 +459,7 @@ def emsr_b_curve(
     s, v, fbar = _aggregate(fares, mu, variances)
     x = np.arange(1, n_seats + 1, dtype=np.float64)
     if law == "poisson":
-        tail = _tail(law, s[..., None], None, x)
+        tail = _poisson_tail_grid(s, n_seats)
     else:
         tail = _tail(law, s[..., None], np.sqrt(v)[..., None], x - 0.5)
     emsr = fbar[..., None] * tail  # (..., k, n): merged class j's value of the x-th seat
@@ -469,6 +469,21 @@ def emsr_b_curve(
     owned = np.take_along_axis(emsr, nest[..., None, :], axis=-2)[..., 0, :]
     values[..., 1:] = np.minimum(fares[nest], owned)
     return levels.astype(np.int64), values
+
+
+def _poisson_tail_grid(mean: np.ndarray, n: int) -> np.ndarray:
+    """``P(D >= x)`` for x = 1..n, Poisson ``mean`` (any shape): ``(..., n)``.
+
+    One exp per cell (the pmf in log space, summed), several times cheaper than the incomplete
+    gamma function and non-increasing in x by construction; agrees with it to ~1e-15.
+    """
+    from scipy.special import gammaln
+
+    d = np.arange(n, dtype=np.float64)
+    m = np.asarray(mean, dtype=np.float64)[..., None]
+    log_m = np.log(np.where(m > 0, m, 1.0))
+    pmf = np.where(m > 0, np.exp(d * log_m - m - gammaln(d + 1.0)), (d == 0).astype(np.float64))
+    return np.maximum(1.0 - np.cumsum(pmf, axis=-1), 0.0)
 
 
 def levels_from_seat_values(values: np.ndarray, fares: np.ndarray) -> np.ndarray:
