@@ -85,7 +85,7 @@ def test_tvr_first_level_is_littlewood():
 def test_littlewood_poisson_example_and_convention():
     """Worked example 2 of the reference file (fares 100/60, Poisson mean 80): y = 78 [formula].
 
-    Provenance: G. Gallego's single-resource lecture notes, Columbia IEOR 4601 [memory]; the
+    Provenance: G. Gallego's single-resource notes (Columbia University, IEOR 4601) [memory]; the
     number follows from Littlewood's (1972) rule and the Poisson cdf alone.
     """
     assert poisson.sf(77, 80) == pytest.approx(0.6034, abs=5e-5)  # P(D >= 78)
