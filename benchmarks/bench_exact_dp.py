@@ -15,7 +15,7 @@ noisy; the minimum is the least disturbed run), updates per second = states x pr
   decision of every product, period and state as a bool array (what the DP must hand the
   simulator).
 * ``rmkit``: the kernel (:mod:`rmkit._dp_kernels`) called on prepared arrays, on one thread and
-  split over threads, values only and with the packed decisions; ``rmkit solve`` the whole
+  as the two-thread pipeline, values only and with the packed decisions; ``rmkit solve`` the whole
   :func:`rmkit.exact_dp.solve_network_dp` call (layout, allocation, kernel, packing).
 * ``quantecon`` (optional): quantecon.markov.backward_induction on the state-action-pair model
   (every subset of products as an action) on (a) and (c); skipped on (b), where the model would
@@ -237,12 +237,11 @@ def main() -> None:
         timing["numpy+dec"] = best_of(lambda net=net, dem=dem: numpy_dp(net, dem, True),
                                       numpy_reps)
         for keep in (False, True):
-            bp = prepare(net, dem, 0, keep, np.zeros(0, dtype=np.int64))
             for parallel in (False, True):
-                bp.run(parallel)  # compile or load from cache
+                bp = prepare(net, dem, 0, keep, np.zeros(0, dtype=np.int64), parallel=parallel)
+                bp.run()  # compile or load from cache
                 label = f"rmkit {'dec' if keep else 'val'} {'2thr' if parallel else '1thr'}"
-                timing[label] = best_of(lambda bp=bp, p=parallel: bp.run(p), args.repeats,
-                                        setup=bp.reset)
+                timing[label] = best_of(bp.run, args.repeats, setup=bp.reset)
         timing["rmkit solve"] = best_of(
             lambda net=net, dem=dem: solve_network_dp(net, dem), args.repeats)
         # same answer as the reference

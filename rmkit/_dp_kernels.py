@@ -21,10 +21,10 @@ Layout of the work, chosen so the inner loop is long, contiguous and branch-free
 * The decision bit ``f >= Vn(s) - Vn(s - d_j)`` (ties accept) is or-ed straight into one
   unsigned word per state and period (uint8 up to 8 products, uint16 up to 16, ...), whose
   little-endian bytes are the ``(K, S, ceil(n/8))`` decision bytes.
-* Only two value layers live at once, the two halves of one array (period k in half k % 2).
-  In the parallel kernel every period's flat range is cut
-  into one chunk per thread (numba ``prange``); chunks write disjoint states and each state sees
-  the same operations in the same order, so results do not depend on the thread count.
+* On one thread only two value layers live at once, the two slots of one array (period k in
+  slot k % 2). On two threads the grid is split in two and the halves run as a pipeline (see
+  :func:`network_values`), which needs a few more slots. Each state sees the same operations
+  in the same order either way, so results do not depend on the thread count.
 """
 
 from __future__ import annotations
@@ -35,29 +35,29 @@ from numba import njit, prange
 
 @njit(cache=True)
 def sweep(
-    k_hi, k_lo, a, b, tile, layers, prob, fare, offsets, masked, run_start, run_stop, run_ptr,
-    mask, word_mask, words, word_bit, keep_bits, record_probe, probe, probe_out, cursor,
+    k_hi, k_lo, a, b, tile, layers, n_slots, prob, fare, offsets, masked, run_start, run_stop,
+    run_ptr, mask, word_mask, words, word_bit, keep_bits, probe, probe_out, cursor,
 ):
     """Periods ``k_hi`` down to ``k_lo`` on the flat states ``a .. b-1``.
 
-    ``layers`` is ``(2 S,)``: the values of period k live at offset ``(k % 2) * S``, so period
-    k reads the other half and no array is ever swapped or re-bound (no reference counting in
-    the loop). The range is swept in tiles of ``tile`` states so the tile being updated stays in
-    the L1 cache while every product updates it. Decisions are or-ed into
+    ``layers`` is ``(n_slots * S,)``: the values of period k live in slot ``k % n_slots``, so
+    period k reads slot ``(k + 1) % n_slots`` and no array is ever swapped or re-bound (no
+    reference counting in the loop). The range is swept in tiles of ``tile`` states so the tile
+    being updated stays in the L1 cache while every product updates it. Decisions are or-ed into
     ``words[k, s * n_words + j // bits_per_word]`` (unsigned words of the dtype of ``word_bit``,
-    zero on entry). When ``record_probe``, ``probe_out[k, q]`` receives ``V_{k+1}[probe[q]]``.
-    ``cursor`` (n,) int64 is scratch. Indices ``a``, ``b``, ``tile``, ``offsets``, ``run_start``,
-    ``run_stop`` are uint64.
+    zero on entry). ``probe_out[k, q]`` receives ``V_{k+1}[probe[q]]`` for the probes in
+    ``a .. b-1``. ``cursor`` (n,) int64 is scratch. Indices ``a``, ``b``, ``tile``,
+    ``offsets``, ``run_start``, ``run_stop`` are uint64.
     """
     n_products = prob.shape[1]
-    n_states = np.uint64(layers.size // 2)
+    n_states = np.uint64(mask.size)
     n_words = np.uint64(words.shape[1]) // n_states
     per_word = 8 * word_bit.itemsize
     for k in range(k_hi, k_lo - 1, -1):
-        co = np.uint64(k % 2) * n_states  # this period's values
-        no = np.uint64((k + 1) % 2) * n_states  # the next period's
-        if record_probe:
-            for q in range(probe.size):
+        co = np.uint64(k % n_slots) * n_states  # this period's values
+        no = np.uint64((k + 1) % n_slots) * n_states  # the next period's
+        for q in range(probe.size):
+            if a <= probe[q] < b:
                 probe_out[k, q] = layers[no + np.uint64(probe[q])]
         for j in range(n_products):
             cursor[j] = run_ptr[j]
@@ -115,29 +115,40 @@ def sweep(
 @njit(cache=True, parallel=True)
 def network_values(
     prob, fare, offsets, masked, run_start, run_stop, run_ptr, mask, word_mask,
-    layers, words, word_bit, keep_bits, probe, probe_out, tile, n_chunks,
+    layers, n_slots, words, word_bit, keep_bits, probe, probe_out, tile, split, batch,
 ):
-    """Backward pass over ``K = prob.shape[0]`` periods, each period split into ``n_chunks``.
+    """Backward pass over ``K = prob.shape[0]`` periods on two threads, as a pipeline.
 
-    ``layers`` is ``(2 S,)`` zeros on entry; on exit its first half holds the first period's
-    values and its second half the second period's (``V_{t0+1}``). ``words`` is
-    ``(K, S * n_words)`` zeros of an unsigned dtype, receiving the decisions when ``keep_bits``
-    (see :func:`sweep`); ``word_mask`` (S,) of that dtype is all ones where ``x_last >= 1``;
-    ``probe_out[k, q]`` receives ``V_{t0+k+1}[probe[q]]``; ``tile`` (uint64) is the number of
-    states swept at a time.
+    Selling only ever moves to a lower flat index, so the states below ``split`` never read
+    those above it: thread 0 sweeps ``0 .. split-1`` through a batch of ``batch`` periods while
+    thread 1 sweeps ``split .. S-1`` through the batch before, reading thread 0's values of those
+    periods from their slots. With ``n_slots >= 2 * batch + 1`` slots no value is overwritten
+    before it is read, and the threads meet once per batch rather than once per period, so a
+    thread held up by a busy machine stalls the other far less often.
+
+    ``layers`` is ``(n_slots * S,)`` zeros on entry; on exit slot 0 holds the first period's
+    values and slot 1 the second's (``V_{t0+1}``). ``words`` is ``(K, S * n_words)`` zeros of an
+    unsigned dtype, receiving the decisions when ``keep_bits`` (see :func:`sweep`); ``word_mask``
+    (S,) of that dtype is all ones where ``x_last >= 1``; ``probe_out[k, q]`` receives
+    ``V_{t0+k+1}[probe[q]]``; ``tile`` and ``split`` are uint64.
     """
     n_periods, n_products = prob.shape
-    n_states = layers.size // 2
-    cursor = np.empty((n_chunks, n_products), dtype=np.int64)
-    for k in range(n_periods - 1, -1, -1):
-        for c in prange(n_chunks):
-            a = np.uint64((n_states * c) // n_chunks)
-            b = np.uint64((n_states * (c + 1)) // n_chunks)
-            sweep(
-                k, k, a, b, tile, layers, prob, fare, offsets, masked, run_start, run_stop,
-                run_ptr, mask, word_mask, words, word_bit, keep_bits, c == 0, probe, probe_out,
-                cursor[c],
-            )
+    n_states = np.uint64(mask.size)
+    cursor = np.empty((2, n_products), dtype=np.int64)
+    n_batches = (n_periods + batch - 1) // batch
+    for r in range(n_batches + 1):
+        for c in prange(2):
+            m = r - c  # thread 1 works one batch behind thread 0
+            if 0 <= m < n_batches:
+                k_hi = n_periods - 1 - m * batch
+                k_lo = max(0, k_hi - batch + 1)
+                a = np.uint64(0) if c == 0 else split
+                b = split if c == 0 else n_states
+                sweep(
+                    k_hi, k_lo, a, b, tile, layers, n_slots, prob, fare, offsets, masked,
+                    run_start, run_stop, run_ptr, mask, word_mask, words, word_bit, keep_bits,
+                    probe, probe_out, cursor[c],
+                )
 
 
 @njit(cache=True)
@@ -145,13 +156,13 @@ def network_values_serial(
     prob, fare, offsets, masked, run_start, run_stop, run_ptr, mask, word_mask,
     layers, words, word_bit, keep_bits, probe, probe_out, tile,
 ):
-    """:func:`network_values` on one thread: one call sweeps every period (small grids)."""
+    """The backward pass on one thread, two value slots: one call sweeps every period."""
     n_periods, n_products = prob.shape
     cursor = np.empty(n_products, dtype=np.int64)
     sweep(
-        n_periods - 1, 0, np.uint64(0), np.uint64(layers.size // 2), tile, layers, prob, fare,
+        n_periods - 1, 0, np.uint64(0), np.uint64(mask.size), tile, layers, 2, prob, fare,
         offsets, masked, run_start, run_stop, run_ptr, mask, word_mask, words, word_bit,
-        keep_bits, True, probe, probe_out, cursor,
+        keep_bits, probe, probe_out, cursor,
     )
 
 

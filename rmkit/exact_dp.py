@@ -54,6 +54,16 @@ PARALLEL_MIN_UPDATES = 40_000
 DEFAULT_MAX_MEMORY_GB = 4.0
 #: States swept at a time by the kernel, so the tile being updated stays in the L1 cache.
 DEFAULT_TILE = 1024
+#: Periods per batch of the two-thread pipeline, and the memory its extra value slots may take.
+PIPELINE_BATCH = 8
+PIPELINE_SLOT_BYTES = 64 * 2**20
+
+
+def pipeline_slots(n_states: int) -> tuple[int, int]:
+    """``(batch, slots)`` of the two-thread pipeline: ``slots = 2 * batch + 1`` value layers."""
+    fit = (PIPELINE_SLOT_BYTES // (8 * max(n_states, 1)) - 1) // 2
+    batch = max(1, min(PIPELINE_BATCH, fit))
+    return batch, 2 * batch + 1
 
 
 # ------------------------------------------------------------------ grid
@@ -179,7 +189,8 @@ def estimate(
     """Memory (bytes) and run time of a backward pass over ``n_periods`` periods."""
     s = network.state_space_size
     n = network.n_products
-    size = 3 * 8 * s + 2 * s + 8 * n_periods * n_probe  # two layers, masks, scratch, probes
+    layers = pipeline_slots(s)[1] if s * n >= PARALLEL_MIN_UPDATES else 2
+    size = (layers + 1) * 8 * s + s + 8 * n_periods * n_probe  # values, masks, probes
     if keep_decisions:
         size += n_periods * s * ((n + 7) // 8)
     seconds = s * n * n_periods / ESTIMATE_UPDATES_PER_SECOND
@@ -320,16 +331,25 @@ class BackwardPass:
 
     layout: _Layout
     args: tuple
-    layers: np.ndarray  # (2, S): V at the first period solved, and at the next
+    layers: np.ndarray  # (slots, S): slot 0 = V at the first period solved, slot 1 = the next
     words: np.ndarray
     probe_out: np.ndarray
+    parallel: bool
+    split: int
+    batch: int
 
-    def run(self, parallel: bool) -> None:
+    def run(self) -> None:
         """Run the kernel once (outputs must be zero, as :func:`prepare` leaves them)."""
         from rmkit import _dp_kernels as kern
 
-        if parallel:
-            kern.network_values(*self.args, _thread_count())
+        if self.parallel:
+            (prob, fare, offsets, masked, starts, stops, ptr, mask, word_mask, layers, words,
+             word_bit, keep, probe, probe_out, tile) = self.args
+            kern.network_values(
+                prob, fare, offsets, masked, starts, stops, ptr, mask, word_mask, layers,
+                self.layers.shape[0], words, word_bit, keep, probe, probe_out, tile,
+                np.uint64(self.split), self.batch,
+            )
         else:
             kern.network_values_serial(*self.args)
 
@@ -339,6 +359,17 @@ class BackwardPass:
             a.fill(0)
 
 
+def _balanced_split(lay: _Layout) -> int:
+    """The flat index that halves the kernel's work (state x product updates) between threads."""
+    n = lay.n_states
+    load = np.zeros(n + 1, dtype=np.int64)
+    np.add.at(load, lay.run_start.astype(np.int64), 1)
+    np.add.at(load, lay.run_stop.astype(np.int64), -1)
+    per_state = np.cumsum(load[:-1]) + 1  # + 1: the copy of every state
+    done = np.cumsum(per_state)
+    return int(np.searchsorted(done, done[-1] / 2))
+
+
 def prepare(
     network: Network,
     demand: DemandModel,
@@ -346,6 +377,7 @@ def prepare(
     keep_decisions: bool,
     probe: np.ndarray,
     tile: int = DEFAULT_TILE,
+    parallel: bool = False,
 ) -> BackwardPass:
     """Allocate and lay out one backward pass (no size check: callers check first)."""
     lay = _layout(network)
@@ -359,12 +391,14 @@ def prepare(
     shift = (np.arange(network.n_products) % per_word).astype(np.uint64)
     word_bit = (np.ones(network.n_products, dtype=np.uint64) << shift).astype(word)
     word_mask = np.where(lay.mask > 0, np.iinfo(word).max, 0).astype(word)
-    layers = np.zeros((2, lay.n_states))
+    batch, slots = pipeline_slots(lay.n_states) if parallel else (1, 2)
+    layers = np.zeros((slots, lay.n_states))
     probe_out = np.zeros((n_k, probe.size))
     args = (prob, fare, lay.offsets, lay.masked, lay.run_start, lay.run_stop, lay.run_ptr,
-            lay.mask, word_mask, layers.reshape(-1), words, word_bit, keep_decisions, probe,
-            probe_out, np.uint64(tile))
-    return BackwardPass(lay, args, layers, words, probe_out)
+            lay.mask, word_mask, layers.reshape(-1), words, word_bit, keep_decisions,
+            probe.astype(np.uint64), probe_out, np.uint64(tile))
+    split = _balanced_split(lay) if parallel else lay.n_states
+    return BackwardPass(lay, args, layers, words, probe_out, parallel, split, batch)
 
 
 def solve_network_dp(
@@ -403,12 +437,12 @@ def solve_network_dp(
         raise InputError(f"probe: flat state indices must be in [0, {n_states - 1}]")
     if isinstance(tile, bool) or not isinstance(tile, (int, np.integer)) or tile < 1:
         raise InputError(f"tile: must be a whole number >= 1, got {tile!r}")
-    bp = prepare(network, demand, period, keep_decisions, probe_idx, int(tile))
     if parallel is None:
         parallel = _use_threads(n_states, network.n_products)
-    bp.run(bool(parallel))
+    bp = prepare(network, demand, period, keep_decisions, probe_idx, int(tile), bool(parallel))
+    bp.run()
     bits = _as_decision_bits(bp.words, n_states, network.n_products) if keep_decisions else None
-    values, spare = bp.layers  # period k's values sit in row k % 2, counting from `period`
+    values, spare = bp.layers[0], bp.layers[1]  # slots of the first two periods solved
     for a in (values, spare, bits, bp.probe_out):
         if a is not None:
             a.setflags(write=False)
@@ -456,6 +490,14 @@ def _differences_over_time(
 ) -> np.ndarray:
     """``(T - period, K, moves)``: ``V_{t+1}(x) - V_{t+1}(x - move)`` for every period t."""
     moves, _, _ = _moves(network, kind)
+    n_k = demand.n_periods - period
+    need = 8 * n_k * x.shape[0] * (2 * moves.shape[0] + 1)  # `there` and the result, `here`
+    if need > max_memory_gb * 2**30:
+        raise ProblemTooLargeError(
+            f"{n_k} periods x {x.shape[0]:,} states x {moves.shape[0]} {kind}s of marginal values "
+            f"need about {need / 2**30:.3g} GiB, above max_memory_gb={max_memory_gb:g}; ask for "
+            "fewer states or fewer periods (solve from a later period)"
+        )
     strides = grid_strides(network.capacities)
     s = flat_index(x, strides)  # (K,)
     ok = np.all(x[:, None, :] >= moves[None, :, :], axis=2)  # (K, M)

@@ -170,19 +170,27 @@ def test_kernels_match_their_py_func():
     s = lay.n_states
     word_bit = (np.ones(1, np.uint8) << np.arange(7)).astype(np.uint8)
     word_mask = np.where(lay.mask > 0, 255, 0).astype(np.uint8)
-    probe = np.array([0, 5, s - 1])
+    probe = np.array([0, 5, s - 1], dtype=np.uint64)
 
-    def run(fn, *extra):
-        layers = np.zeros(2 * s)
-        words = np.zeros((4, s), np.uint8)
-        out = np.zeros((4, 3))
-        fn(prob, fare, lay.offsets, lay.masked, lay.run_start, lay.run_stop, lay.run_ptr,
-           lay.mask, word_mask, layers, words, word_bit, True, probe, out, np.uint64(7), *extra)
-        return layers, words, out
+    head = (prob, fare, lay.offsets, lay.masked, lay.run_start, lay.run_stop, lay.run_ptr,
+            lay.mask, word_mask)
 
-    compiled = run(kern.network_values_serial)
-    for other in (run(kern.network_values_serial.py_func), run(kern.network_values, 2),
-                  run(kern.network_values.py_func, 3)):
+    def serial(fn):
+        layers, words, out = np.zeros(2 * s), np.zeros((4, s), np.uint8), np.zeros((4, 3))
+        fn(*head, layers, words, word_bit, True, probe, out, np.uint64(7))
+        return layers[: 2 * s], words, out
+
+    def pipeline(fn, split, batch):
+        slots = 2 * batch + 1
+        layers, words, out = np.zeros(slots * s), np.zeros((4, s), np.uint8), np.zeros((4, 3))
+        fn(*head, layers, slots, words, word_bit, True, probe, out, np.uint64(7),
+           np.uint64(split), batch)
+        return layers[: 2 * s], words, out
+
+    compiled = serial(kern.network_values_serial)
+    for other in (serial(kern.network_values_serial.py_func),
+                  pipeline(kern.network_values, s // 2, 1), pipeline(kern.network_values, 7, 3),
+                  pipeline(kern.network_values.py_func, s // 3, 2)):
         for x, y in zip(compiled, other, strict=True):
             np.testing.assert_array_equal(x, y)
     # the visit kernel too
@@ -304,6 +312,13 @@ def test_leg_marginal_values_and_opportunity_costs_at_states():
                 else:
                     assert got == pytest.approx(bf[t + 1][tuple(x)] - bf[t + 1][tuple(y)],
                                                 rel=1e-9, abs=1e-9)
+
+
+def test_marginal_value_queries_refuse_outputs_above_the_memory_limit():
+    net, dem = small_problem()
+    states = grid_states(net.capacities)
+    with pytest.raises(ProblemTooLargeError, match="fewer states"):
+        leg_marginal_values(net, dem, states, max_memory_gb=1e-6)
 
 
 def test_slices_have_one_capacity_dim_per_free_leg():
