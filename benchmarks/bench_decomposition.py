@@ -1,0 +1,138 @@
+"""Benchmark of the decomposition methods (dpd, lr) on two public hub-and-spoke instances.
+
+Run by hand: ``python benchmarks/bench_decomposition.py [--paths N]``. Needs ../shared beside the
+checkout (the instances of Topaloglu 2009, Operations Research 57(3):637-649).
+
+Reports, per instance: the cost of one pass of all leg DPs (values and expected sales); the LR
+cold solve (wall time, iterations, bound, status, certified gap); the iterations and wall time
+to bring the bound within 0.5% of a long reference run's bound (the goal on rm_600_8_1.6_8.0:
+under 10 s); mid-horizon re-solves at the simulator's five points (periods 0, T/5, ..., 4T/5)
+on sample paths, warm-started from the period-0 multipliers against cold solves from the DLP
+split, as a ratio measured in the same run; and the dpd solve time. The machine is shared and
+noisy: compare ratios within one run, not absolute times across runs.
+"""
+
+from __future__ import annotations
+
+import argparse
+import time
+import warnings
+from pathlib import Path
+
+import numpy as np
+
+from rmkit import BookingState, get_solver
+from rmkit.benchmark_io import read_hub_spoke
+
+HUB_SPOKE = Path(__file__).resolve().parents[2] / "shared" / "benchmarks" / "hub-spoke"
+INSTANCES = ("rm_200_4_1.0_4.0", "rm_600_8_1.6_8.0")
+
+
+def timed(fn):
+    start = time.perf_counter()
+    out = fn()
+    return out, time.perf_counter() - start
+
+
+def lr(net, dem, state=None, **settings):
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        return get_solver("lr", **settings).solve(net, dem, state=state)
+
+
+def leg_pass_seconds(net, dem, repeats: int = 20) -> float:
+    from rmkit._decomposition_kernels import leg_acceptance_batch
+    from rmkit._single_leg_kernels import leg_values_batch
+    from rmkit.solvers.lr import dual_split
+
+    prob = np.ascontiguousarray(dem.probabilities)
+    lam = dual_split(net, np.zeros(net.n_legs), dem.n_periods)
+    caps = np.ascontiguousarray(net.capacities)
+    values = np.empty((net.n_legs, dem.n_periods + 1, net.max_capacity + 1))
+    occ = np.empty_like(values)
+    acc = np.empty(lam.shape)
+    leg_values_batch(prob, lam, caps, values)
+    leg_acceptance_batch(prob, lam, caps, caps, values, occ, acc)
+    start = time.perf_counter()
+    for _ in range(repeats):
+        leg_values_batch(prob, lam, caps, values)
+        leg_acceptance_batch(prob, lam, caps, caps, values, occ, acc)
+    return (time.perf_counter() - start) / repeats
+
+
+def resolve_states(net, dem, result, paths: int, seed: int):
+    """States at periods 0, T/5, ..., 4T/5 along paths run with the LR bid-price table."""
+    T = dem.n_periods
+    points = [k * T // 5 for k in range(1, 5)]
+    streams = dem.sample_streams(paths, seed)
+    table = result["bid_price_table"]
+    legs = [net.product_legs(j) for j in range(net.n_products)]
+    states = []
+    for path in range(paths):
+        x = np.array(net.capacities, dtype=np.int64)
+        for t in range(T):
+            if t in points:
+                states.append(BookingState(t, tuple(int(c) for c in x)))
+            j = int(streams[path, t])
+            if j < 0:
+                continue
+            used = legs[j]
+            if np.all(x[used] >= 1) and net.fares[j] >= table[t, x[used], used].sum():
+                x[used] -= 1
+    return states
+
+
+def bench(name: str, paths: int) -> None:
+    scen = read_hub_spoke(HUB_SPOKE / f"{name}.txt.gz")
+    net, dem = scen.network, scen.demand
+    lr(net, dem, max_iterations=2)  # compile the kernels
+    print(f"\n== {name}: {net.n_legs} legs, {net.n_products} products, {dem.n_periods} periods")
+    print(f"one pass of all leg DPs (values + expected sales): {leg_pass_seconds(net, dem)*1e3:.1f} ms")
+
+    cold, cold_s = timed(lambda: lr(net, dem))
+    iters = cold.payload["iterations"]
+    print(f"lr cold, default settings: {cold_s:.2f} s, {iters} iterations, bound {cold.value:.1f}, "
+          f"status {cold.status}, certified gap {cold['gap_history'][-1]:.4f}")
+    ref, ref_s = timed(lambda: lr(net, dem, max_iterations=1500, stall_tol=0.0, tol=1e-5))
+    final = ref.value
+    print(f"lr reference run: {ref_s:.2f} s, {ref.payload['iterations']} iterations, bound {final:.1f}, "
+          f"certified gap {ref['gap_history'][-1]:.4f}")
+    hist = ref["bound_history"]
+    k = int(np.argmax(hist <= final * 1.005))
+    reach, reach_s = timed(lambda: lr(net, dem, max_iterations=k + 1, stall_tol=0.0, tol=1e-5))
+    print(f"bound within 0.5% of the reference after {k + 1} iteration(s): {reach_s:.2f} s "
+          f"(bound {reach.value:.1f}, {100 * (reach.value / final - 1):.3f}% above)")
+
+    states = resolve_states(net, dem, cold, paths, seed=11)
+    lr(net, dem, warm_start=True)  # fill the period-0 cache, as a simulator's first solve would
+    warm_s = cold_s_total = 0.0
+    warm_it = cold_it = 0
+    worse = []
+    for st in states:
+        w, s1 = timed(lambda st=st: lr(net, dem, state=st, warm_start=True))
+        c, s2 = timed(lambda st=st: lr(net, dem, state=st))
+        warm_s += s1
+        cold_s_total += s2
+        warm_it += w.payload["iterations"]
+        cold_it += c.payload["iterations"]
+        worse.append(w.value / c.value - 1)
+    n = len(states)
+    print(f"mid-horizon re-solves ({n} states on {paths} paths at T/5..4T/5): "
+          f"warm {warm_s / n * 1e3:.0f} ms and {warm_it / n:.0f} iterations per solve, "
+          f"cold {cold_s_total / n * 1e3:.0f} ms and {cold_it / n:.0f} iterations; "
+          f"warm/cold time ratio {warm_s / cold_s_total:.2f}; warm bound vs cold bound: "
+          f"mean {100 * np.mean(worse):+.3f}%, max {100 * np.max(worse):+.3f}%")
+    dpd, dpd_s = timed(lambda: get_solver("dpd").solve(net, dem))
+    print(f"dpd: {dpd_s:.2f} s (value {dpd.value:.1f}, not a bound)")
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--paths", type=int, default=5, help="sample paths for re-solve states")
+    args = parser.parse_args()
+    for name in INSTANCES:
+        bench(name, args.paths)
+
+
+if __name__ == "__main__":
+    main()
