@@ -28,6 +28,15 @@ On each leg the products with a positive counted fare are sorted from high to lo
 into classes (:func:`leg_classes`): equal fares always share a class; with a bucket count the
 distinct fares are grouped as :func:`rmkit.leg_heuristics.group_fares` documents. A class's fare
 is the demand-weighted mean of its members' counted fares.
+
+>>> net = Network.build(
+...     legs=[("A", 5), ("B", 5)],
+...     products=[("a", 100.0, ["A"]), ("b", 300.0, ["B"]), ("ab", 500.0, ["A", "B"])],
+... )
+>>> prorated_fares(net)[:, 2].tolist()  # references 100 and 300
+[125.0, 375.0]
+>>> network_fares(net, [80.0, 200.0])[:, 2].tolist()  # 500 - 200 on A, 500 - 80 on B
+[300.0, 420.0]
 """
 
 from __future__ import annotations
