@@ -409,3 +409,15 @@ def test_heuristic_multiplier_scales_every_bid_price():
     finite = np.isfinite(one["bid_price_table"])
     np.testing.assert_allclose(two["bid_price_table"][finite], 2.5 * one["bid_price_table"][finite])
     assert two["bid_price_table"].shape[0] == 35 and two.bid_prices[0] == 2.5 * one.bid_prices[0]
+
+
+def test_module_examples_run():
+    """The hand-checkable examples in the module docstrings hold."""
+    import doctest
+
+    import rmkit.fare_adjust
+    import rmkit.leg_heuristics
+
+    for module in (rmkit.leg_heuristics, rmkit.fare_adjust):
+        failed, tried = doctest.testmod(module)
+        assert tried > 0 and failed == 0
