@@ -63,10 +63,14 @@ from collections.abc import Sequence
 
 import numpy as np
 
-from rmkit.errors import InputError
+from rmkit.errors import InputError, ProblemTooLargeError
 
 LAWS = ("normal", "poisson")
 PMF_SLACK = 1e-9  # tolerated rounding in a pmf's total
+#: The static-model recursions hold a few (C+1) x (C+1) arrays; refuse beyond this many bytes.
+MEMORY_LIMIT = 2 * 2**30
+#: ... and beyond this many multiply-adds (the optimal levels cost about k^2/2 (C+1)^3).
+WORK_LIMIT = 5e10
 
 
 # ------------------------------------------------------------------ input checks
@@ -342,6 +346,17 @@ def _sales_transition(pmf: np.ndarray, tails: np.ndarray, room: np.ndarray) -> n
     return t
 
 
+def _check_size(capacity: int, k: int, work: float, what: str) -> None:
+    """Refuse a static-model computation whose arrays or arithmetic would be too large."""
+    memory = 4 * 8 * (capacity + 1) ** 2
+    if memory > MEMORY_LIMIT or work > WORK_LIMIT:
+        raise ProblemTooLargeError(
+            f"capacity: {what} with {capacity} seats and {k} classes needs about "
+            f"{memory / 2**30:.1f} GiB and {work:.1e} multiply-adds (limits {MEMORY_LIMIT / 2**30:.0f} "
+            f"GiB, {WORK_LIMIT:.0e}); use fewer seats, or the single-leg DP (rmkit.single_leg)"
+        )
+
+
 def _check_protection(protection: object, k: int, capacity: int) -> np.ndarray:
     y = np.asarray(protection, dtype=np.float64).reshape(-1)
     if y.size != k - 1:
@@ -365,6 +380,7 @@ def nested_sales(pmfs: np.ndarray, capacity: int, protection: Sequence[int] | np
     c = check_capacity(capacity)
     p = _padded(check_pmfs(pmfs, k), c)
     y = _check_protection(protection, k, c)
+    _check_size(c, k, k * (c + 1.0) ** 2, "the nested-limit revenue")
     tails = np.append(_tails_of_pmf(p), np.zeros((k, 1)), axis=1)
     dist = np.zeros(c + 1)
     dist[c] = 1.0
@@ -401,6 +417,7 @@ def optimal_protection_levels(
     """
     f = check_fares(fares)
     c = check_capacity(capacity)
+    _check_size(c, f.size, f.size**2 / 2 * (c + 1.0) ** 3, "the optimal nested levels")
     p = _padded(check_pmfs(pmfs, f.size), c)
     tails = np.append(_tails_of_pmf(p), np.zeros((f.size, 1)), axis=1)
     xs = np.arange(c + 1)

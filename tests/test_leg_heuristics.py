@@ -421,3 +421,13 @@ def test_module_examples_run():
     for module in (rmkit.leg_heuristics, rmkit.fare_adjust):
         failed, tried = doctest.testmod(module)
         assert tried > 0 and failed == 0
+
+
+def test_oversized_static_model_is_refused_up_front():
+    from rmkit import ProblemTooLargeError
+
+    pmfs = np.array([[1.0], [1.0], [1.0]])
+    with pytest.raises(ProblemTooLargeError, match=r"capacity: the optimal nested levels with 5000 seats"):
+        optimal_protection_levels([300.0, 200.0, 100.0], pmfs, 5000)
+    with pytest.raises(ProblemTooLargeError, match=r"GiB"):
+        nested_revenue([300.0, 200.0, 100.0], pmfs, 20_000, [0, 0])
