@@ -35,8 +35,8 @@ from numba import njit, prange
 
 @njit(cache=True)
 def sweep(
-    k_hi, k_lo, a, b, tile, layers, n_slots, prob, fare, offsets, masked, run_start, run_stop,
-    run_ptr, mask, word_mask, words, word_bit, keep_bits, probe, probe_out, cursor,
+    k_hi, k_lo, a, b, tile, layers, n_slots, prob, fare, offsets, masked, pair, run_start,
+    run_stop, run_ptr, mask, word_mask, words, word_bit, keep_bits, probe, probe_out, cursor,
 ):
     """Periods ``k_hi`` down to ``k_lo`` on the flat states ``a .. b-1``.
 
@@ -46,7 +46,9 @@ def sweep(
     being updated stays in the L1 cache while every product updates it. Decisions are or-ed into
     ``words[k, s * n_words + j // bits_per_word]`` (unsigned words of the dtype of ``word_bit``,
     zero on entry). ``probe_out[k, q]`` receives ``V_{k+1}[probe[q]]`` for the probes in
-    ``a .. b-1``. ``cursor`` (n,) int64 is scratch. Indices ``a``, ``b``, ``tile``,
+    ``a .. b-1``. ``pair[j] = 1`` marks a product whose successor uses the same legs (and the
+    same decision word): the two share one pass. ``cursor`` (n,) int64 is scratch. Indices
+    ``a``, ``b``, ``tile``,
     ``offsets``, ``run_start``, ``run_stop`` are uint64.
     """
     n_products = prob.shape[1]
@@ -66,13 +68,19 @@ def sweep(
             tb = min(ta + tile, b)
             for s in range(ta, tb):
                 layers[co + s] = layers[no + s]
-            for j in range(n_products):
+            j = 0
+            while j < n_products:
                 p = prob[k, j]
                 f = fare[k, j]
                 nd = no - offsets[j]  # layers[nd + s] = V_{k+1}(s - d_j)
                 bit = word_bit[j]
                 zero = bit ^ bit
                 w = np.uint64(j // per_word)
+                two = pair[j] != 0 and (n_words == 1 or not keep_bits)
+                j2 = j + 1 if two else j  # with a pair: product j + 1, same legs, same word
+                p2 = prob[k, j2]
+                f2 = fare[k, j2]
+                bit2 = word_bit[j2]
                 r = cursor[j]
                 stop = run_ptr[j + 1]
                 while r < stop and run_stop[r] <= ta:
@@ -82,7 +90,38 @@ def sweep(
                     lo = max(run_start[r], ta)
                     hi = min(run_stop[r], tb)
                     r += 1
-                    if not keep_bits:
+                    if two:
+                        # two products on the same legs share the opportunity cost; their
+                        # terms are still added one after the other, in product order
+                        if masked[j] and keep_bits:
+                            for s in range(lo, hi):
+                                cost = layers[no + s] - layers[nd + s]
+                                g1 = f - cost
+                                g2 = f2 - cost
+                                layers[co + s] += p * (max(g1, 0.0) * mask[s])
+                                layers[co + s] += p2 * (max(g2, 0.0) * mask[s])
+                                words[k, s] |= ((bit if g1 >= 0.0 else zero)
+                                                | (bit2 if g2 >= 0.0 else zero)) & word_mask[s]
+                        elif keep_bits:
+                            for s in range(lo, hi):
+                                cost = layers[no + s] - layers[nd + s]
+                                g1 = f - cost
+                                g2 = f2 - cost
+                                layers[co + s] += p * max(g1, 0.0)
+                                layers[co + s] += p2 * max(g2, 0.0)
+                                words[k, s] |= (bit if g1 >= 0.0 else zero) | (
+                                    bit2 if g2 >= 0.0 else zero)
+                        elif masked[j]:
+                            for s in range(lo, hi):
+                                cost = layers[no + s] - layers[nd + s]
+                                layers[co + s] += p * (max(f - cost, 0.0) * mask[s])
+                                layers[co + s] += p2 * (max(f2 - cost, 0.0) * mask[s])
+                        else:
+                            for s in range(lo, hi):
+                                cost = layers[no + s] - layers[nd + s]
+                                layers[co + s] += p * max(f - cost, 0.0)
+                                layers[co + s] += p2 * max(f2 - cost, 0.0)
+                    elif not keep_bits:
                         if masked[j]:
                             for s in range(lo, hi):
                                 gain = f - (layers[no + s] - layers[nd + s])
@@ -109,12 +148,13 @@ def sweep(
                             layers[co + s] += p * (max(gain, 0.0) * m)
                             if gain >= 0.0 and m != 0.0:
                                 words[k, s * n_words + w] |= bit
+                j = j2 + 1
             ta = tb
 
 
 @njit(cache=True, parallel=True)
 def network_values(
-    prob, fare, offsets, masked, run_start, run_stop, run_ptr, mask, word_mask,
+    prob, fare, offsets, masked, pair, run_start, run_stop, run_ptr, mask, word_mask,
     layers, n_slots, words, word_bit, keep_bits, probe, probe_out, tile, split, batch,
 ):
     """Backward pass over ``K = prob.shape[0]`` periods on two threads, as a pipeline.
@@ -145,7 +185,7 @@ def network_values(
                 a = np.uint64(0) if c == 0 else split
                 b = split if c == 0 else n_states
                 sweep(
-                    k_hi, k_lo, a, b, tile, layers, n_slots, prob, fare, offsets, masked,
+                    k_hi, k_lo, a, b, tile, layers, n_slots, prob, fare, offsets, masked, pair,
                     run_start, run_stop, run_ptr, mask, word_mask, words, word_bit, keep_bits,
                     probe, probe_out, cursor[c],
                 )
@@ -153,7 +193,7 @@ def network_values(
 
 @njit(cache=True)
 def network_values_serial(
-    prob, fare, offsets, masked, run_start, run_stop, run_ptr, mask, word_mask,
+    prob, fare, offsets, masked, pair, run_start, run_stop, run_ptr, mask, word_mask,
     layers, words, word_bit, keep_bits, probe, probe_out, tile,
 ):
     """The backward pass on one thread, two value slots: one call sweeps every period."""
@@ -161,7 +201,7 @@ def network_values_serial(
     cursor = np.empty(n_products, dtype=np.int64)
     sweep(
         n_periods - 1, 0, np.uint64(0), np.uint64(mask.size), tile, layers, 2, prob, fare,
-        offsets, masked, run_start, run_stop, run_ptr, mask, word_mask, words, word_bit,
+        offsets, masked, pair, run_start, run_stop, run_ptr, mask, word_mask, words, word_bit,
         keep_bits, probe, probe_out, cursor,
     )
 

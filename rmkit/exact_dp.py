@@ -101,6 +101,7 @@ class _Layout:
     strides: np.ndarray
     offsets: np.ndarray  # uint64 d_j = A_j . strides
     masked: np.ndarray  # uint8: j uses the last leg
+    pair: np.ndarray  # uint8: j and j + 1 use the same legs and share a pass (see the kernels)
     run_start: np.ndarray  # uint64
     run_stop: np.ndarray  # uint64
     run_ptr: np.ndarray  # int64 (n + 1,): runs of j are run_ptr[j] .. run_ptr[j+1]-1
@@ -134,6 +135,25 @@ def _product_runs(caps: np.ndarray, strides: np.ndarray, legs: np.ndarray) -> np
     return np.stack([start, stop], axis=1)
 
 
+def _pairs(a: np.ndarray) -> np.ndarray:
+    """``pair[j] = 1`` where products j and j + 1 use the same legs (greedy, left to right).
+
+    Such neighbours (fare classes of one itinerary, usually listed together) share the
+    opportunity cost, so the kernel reads it once for both. Pairs never straddle a 64-product
+    decision word.
+    """
+    n = a.shape[1]
+    pair = np.zeros(n, dtype=np.uint8)
+    j = 0
+    while j < n - 1:
+        if np.array_equal(a[:, j], a[:, j + 1]) and (j + 1) % 64 != 0:
+            pair[j] = 1
+            j += 2
+        else:
+            j += 1
+    return pair
+
+
 def _layout(network: Network) -> _Layout:
     caps = network.capacities
     a = network.incidence
@@ -145,6 +165,7 @@ def _layout(network: Network) -> _Layout:
     allruns = np.concatenate(runs, axis=0)
     on = (np.arange(n_states) % (int(caps[-1]) + 1)) >= 1
     return _Layout(
+        pair=_pairs(a),
         strides=strides,
         offsets=(a.T @ strides).astype(np.uint64),
         # one leg: every run lies within the single row, past x = 0, so no mask is needed
@@ -343,10 +364,10 @@ class BackwardPass:
         from rmkit import _dp_kernels as kern
 
         if self.parallel:
-            (prob, fare, offsets, masked, starts, stops, ptr, mask, word_mask, layers, words,
-             word_bit, keep, probe, probe_out, tile) = self.args
+            (prob, fare, offsets, masked, pair, starts, stops, ptr, mask, word_mask, layers,
+             words, word_bit, keep, probe, probe_out, tile) = self.args
             kern.network_values(
-                prob, fare, offsets, masked, starts, stops, ptr, mask, word_mask, layers,
+                prob, fare, offsets, masked, pair, starts, stops, ptr, mask, word_mask, layers,
                 self.layers.shape[0], words, word_bit, keep, probe, probe_out, tile,
                 np.uint64(self.split), self.batch,
             )
@@ -394,8 +415,8 @@ def prepare(
     batch, slots = pipeline_slots(lay.n_states) if parallel else (1, 2)
     layers = np.zeros((slots, lay.n_states))
     probe_out = np.zeros((n_k, probe.size))
-    args = (prob, fare, lay.offsets, lay.masked, lay.run_start, lay.run_stop, lay.run_ptr,
-            lay.mask, word_mask, layers.reshape(-1), words, word_bit, keep_decisions,
+    args = (prob, fare, lay.offsets, lay.masked, lay.pair, lay.run_start, lay.run_stop,
+            lay.run_ptr, lay.mask, word_mask, layers.reshape(-1), words, word_bit, keep_decisions,
             probe.astype(np.uint64), probe_out, np.uint64(tile))
     split = _balanced_split(lay) if parallel else lay.n_states
     return BackwardPass(lay, args, layers, words, probe_out, parallel, split, batch)
