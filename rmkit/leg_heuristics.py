@@ -308,12 +308,18 @@ def demand_pmf(
     """
     n = check_capacity(max_count, "max_count")
     mu, sd = check_demand(means, stds, law, np.asarray(means).size)
-    d = np.arange(n + 1, dtype=np.float64)
+    return demand_pmf_grid(mu, sd, law, n)
+
+
+def demand_pmf_grid(means: np.ndarray, stds: np.ndarray | None, law: str, max_count: int) -> np.ndarray:
+    """:func:`demand_pmf` for means of any shape (not re-checked): ``(..., max_count+1)``."""
+    mu = np.asarray(means, dtype=np.float64)[..., None]
+    d = np.arange(max_count + 1, dtype=np.float64)
     if law == "poisson":
-        tails = _tail(law, mu[:, None], None, d[None, :])
+        tails = _tail(law, mu, None, d)
     else:
-        tails = _tail(law, mu[:, None], sd[:, None], d[None, :] - 0.5)
-        tails[:, 0] = 1.0  # the mass below zero books nothing
+        tails = _tail(law, mu, np.asarray(stds, dtype=np.float64)[..., None], d - 0.5)
+        tails[..., 0] = 1.0  # the mass below zero books nothing
     return _pmf_from_tails(tails)
 
 
@@ -378,20 +384,42 @@ def nested_sales(pmfs: np.ndarray, capacity: int, protection: Sequence[int] | np
     p0 = np.asarray(pmfs, dtype=np.float64)
     k = p0.shape[0] if p0.ndim == 2 else 0
     c = check_capacity(capacity)
-    p = _padded(check_pmfs(pmfs, k), c)
+    p = check_pmfs(pmfs, k)
     y = _check_protection(protection, k, c)
-    _check_size(c, k, k * (c + 1.0) ** 2, "the nested-limit revenue")
-    tails = np.append(_tails_of_pmf(p), np.zeros((k, 1)), axis=1)
-    dist = np.zeros(c + 1)
-    dist[c] = 1.0
-    sales = np.zeros(k)
+    return nested_sales_batch(p[None], np.array([c]), y[None])[0]
+
+
+def nested_sales_batch(pmfs: np.ndarray, capacity: np.ndarray, protection: np.ndarray) -> np.ndarray:
+    """:func:`nested_sales` of B legs at once (inputs not re-checked): ``(B, k)``.
+
+    ``pmfs`` ``(B, k, N+1)``, ``capacity`` ``(B,)`` whole numbers, ``protection`` ``(B, k-1)``
+    whole numbers. Classes with no demand (pmf ``[1, 0, ...]``) may pad a leg's row.
+    """
+    n_legs, k = pmfs.shape[:2]
+    cap = np.asarray(capacity, dtype=np.int64)
+    c = int(cap.max(initial=0))
+    _check_size(c, k, n_legs * k * (c + 1.0) ** 2, "the nested-limit revenue")
+    y = np.minimum(np.asarray(protection, dtype=np.int64).reshape(n_legs, max(k - 1, 0)), c)
+    width = max(pmfs.shape[2], c + 1)
+    p = np.zeros((n_legs, k, width))
+    p[..., : pmfs.shape[2]] = pmfs
+    tails = np.concatenate([_tails_of_pmf(p), np.zeros((n_legs, k, 1))], axis=-1)
+    # E[min(D, a)] = sum_{d=1..a} P(D >= d), indexed by a
+    expected = np.concatenate([np.zeros((n_legs, k, 1)), np.cumsum(tails[..., 1:], axis=-1)], axis=-1)
     xs = np.arange(c + 1)
+    sold = xs[:, None] - xs[None, :]  # seats sold to go from x to x'
+    capped = np.clip(sold, 0, width - 1)
+    dist = np.zeros((n_legs, c + 1))
+    dist[np.arange(n_legs), cap] = 1.0
+    sales = np.zeros((n_legs, k))
     for j in range(k - 1, -1, -1):
-        room = np.maximum(xs - (y[j - 1] if j >= 1 else 0), 0)
-        # E[min(D, a)] = sum_{d=1..a} P(D >= d)
-        expected = np.concatenate([[0.0], np.cumsum(tails[j, 1:])])[room]
-        sales[j] = float(dist @ expected)
-        dist = dist @ _sales_transition(p[j], tails[j], room)
+        room = np.maximum(xs[None, :] - (y[:, j - 1 : j] if j >= 1 else 0), 0)  # (B, C+1)
+        sales[:, j] = (dist * np.take_along_axis(expected[:, j], room, axis=1)).sum(axis=1)
+        inside = (sold[None] >= 0) & (sold[None] < room[:, :, None])
+        step = np.where(inside, p[:, j][:, capped], 0.0)
+        edge = np.take_along_axis(tails[:, j], room, axis=1)  # P(D >= room): sells all it may
+        step += np.where(sold[None] == room[:, :, None], edge[:, :, None], 0.0)
+        dist = np.einsum("bx,bxy->by", dist, step)
     return sales
 
 
@@ -451,7 +479,10 @@ def emsr_b_curve(
     Parameters
     ----------
     fares
-        ``(k,)`` strictly decreasing class fares (not re-checked: callers validate).
+        ``(..., k)`` (broadcast against ``means``) class fares, strictly decreasing (not
+        re-checked: callers validate). Classes of zero fare and zero demand may pad the end of a
+        row (to batch legs with different class counts): they change neither the real classes'
+        levels nor any seat value.
     means, variances
         ``(..., k)`` class demand means and (normal law) variances.
     n_seats
@@ -470,7 +501,8 @@ def emsr_b_curve(
     batch = mu.shape[:-1]
     values = np.zeros((*batch, n_seats + 1))
     values[..., 0] = np.inf
-    k = fares.size
+    k = mu.shape[-1]
+    fares = np.broadcast_to(np.asarray(fares, dtype=np.float64), mu.shape)
     if k == 0 or n_seats == 0:
         return np.zeros((*batch, max(k - 1, 0)), dtype=np.int64), values
     s, v, fbar = _aggregate(fares, mu, variances)
@@ -480,11 +512,11 @@ def emsr_b_curve(
     else:
         tail = _tail(law, s[..., None], np.sqrt(v)[..., None], x - 0.5)
     emsr = fbar[..., None] * tail  # (..., k, n): merged class j's value of the x-th seat
-    levels = np.count_nonzero(emsr[..., :-1, :] > fares[1:, None], axis=-1)
+    levels = np.count_nonzero(emsr[..., :-1, :] > fares[..., 1:, None], axis=-1)
     levels = np.maximum.accumulate(levels, axis=-1) if k > 1 else levels
     nest = np.count_nonzero(levels[..., :, None] < x, axis=-2)  # (..., n): j(x)
     owned = np.take_along_axis(emsr, nest[..., None, :], axis=-2)[..., 0, :]
-    values[..., 1:] = np.minimum(fares[nest], owned)
+    values[..., 1:] = np.minimum(np.take_along_axis(fares, nest, axis=-1), owned)
     return levels.astype(np.int64), values
 
 
@@ -504,9 +536,13 @@ def _poisson_tail_grid(mean: np.ndarray, n: int) -> np.ndarray:
 
 
 def levels_from_seat_values(values: np.ndarray, fares: np.ndarray) -> np.ndarray:
-    """Nested levels a non-increasing seat-value curve implies: ``#{x >= 1 : v(x) > f_{j+1}}``."""
+    """Nested levels a non-increasing seat-value curve implies: ``#{x >= 1 : v(x) > f_{j+1}}``.
+
+    ``values`` ``(..., n+1)`` (index 0 ignored), ``fares`` ``(..., k)``; returns ``(..., k-1)``.
+    """
     v = np.asarray(values, dtype=np.float64)[..., 1:]
-    return np.count_nonzero(v[..., None, :] > np.asarray(fares)[1:, None], axis=-1).astype(np.int64)
+    f = np.asarray(fares, dtype=np.float64)
+    return np.count_nonzero(v[..., None, :] > f[..., 1:, None], axis=-1).astype(np.int64)
 
 
 # ------------------------------------------------------------------ grouping into buckets

@@ -242,3 +242,32 @@ def test_bad_settings_are_refused_with_the_template():
         get_solver("davn", displacement_method="davn").solve(net, dem)
     with pytest.raises(InputError, match=r"unknown method 'nope'; valid methods:"):
         get_solver("emsrb", fare_basis="network", displacement_method="nope").solve(net, dem)
+
+
+# ------------------------------------------------------------------ the leg-level value
+@pytest.mark.parametrize("method", ["emsrb", "emsrb-heuristic"])
+def test_value_is_each_legs_static_revenue_at_prorated_shares(method):
+    """value = sum over legs of E[sales per class] x the class's prorated share (module docstring).
+
+    Rebuilt leg by leg from the public static-model functions. The connection's fare 200 splits
+    125 / 75 by the one-leg fares 100 and 60, so crediting a leg with another leg's share shows.
+    """
+    from rmkit.leg_heuristics import demand_pmf, levels_from_seat_values, nested_sales
+
+    net, dem = two_legs()
+    state = BookingState(period=10, capacity=(7, 4))
+    res = get_solver(method).solve(net, dem, state=state)
+    shares = prorated_fares(net)
+    np.testing.assert_allclose(shares[:, 2], [125.0, 75.0])
+    mean = dem.demand_to_come(10)
+    want = 0.0
+    for i, seats in enumerate(state.capacity):
+        order = [j for j in np.argsort(-shares[i]) if np.isfinite(shares[i, j])]
+        fares = shares[i, order]
+        if method == "emsrb":
+            levels = res["protection_level"][i, : len(order) - 1]
+        else:
+            levels = levels_from_seat_values(res["bid_price_table"][0, : seats + 1, i], fares)
+        pmfs = demand_pmf(mean[order], None, "poisson", seats)
+        want += float(fares @ nested_sales(pmfs, seats, levels))
+    assert res.value == pytest.approx(want, rel=1e-12)

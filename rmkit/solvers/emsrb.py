@@ -54,7 +54,7 @@ from rmkit.fare_adjust import (
     moments_to_come,
     prorated_fares,
 )
-from rmkit.leg_heuristics import LAWS, demand_pmf, emsr_b_curve, nested_sales
+from rmkit.leg_heuristics import LAWS, demand_pmf_grid, emsr_b_curve, nested_sales_batch
 from rmkit.network import Network
 from rmkit.solver import Param, Problem, SolveOutput, Solver, Tags, non_negative_int, one_of, register
 
@@ -76,53 +76,76 @@ FARE_BASIS_PARAM = Param(
 
 
 @dataclass(frozen=True)
-class LegNest:
-    """One leg's EMSR-b control at the solve state: classes, integer levels, seat values."""
+class LegBatch:
+    """Every leg's classes, padded to one width with zero-fare, zero-demand classes.
 
-    classes: LegClasses
-    levels: np.ndarray  # (k-1,) seats protected for classes 0..c against c+1
-    seat_values: np.ndarray  # (x+1,) EMSR-b value of the x-th seat, +inf at 0
+    The padding lets EMSR-b and the static-model revenue run on all legs in one vectorised call
+    (:func:`rmkit.leg_heuristics.emsr_b_curve` and :func:`~rmkit.leg_heuristics.nested_sales_batch`
+    document why it changes nothing).
+    """
+
+    classes: tuple[LegClasses, ...]
+
+    @classmethod
+    def build(cls, counted: np.ndarray, weights: np.ndarray, n_buckets: int | None) -> LegBatch:
+        return cls(tuple(leg_classes(row, weights, n_buckets) for row in counted))
+
+    @property
+    def width(self) -> int:
+        return max((c.n_classes for c in self.classes), default=0)
+
+    @property
+    def fares(self) -> np.ndarray:
+        """``(leg, width)`` class fares, 0 in the padding."""
+        return self._padded([c.fares for c in self.classes])
+
+    def totals(self, per_product: np.ndarray) -> np.ndarray:
+        """``(..., leg, width)``: a per-product quantity summed over each class, 0 in the padding."""
+        return self._padded([c.class_totals(per_product) for c in self.classes])
+
+    def means(self, per_leg_product: np.ndarray, weights: np.ndarray) -> np.ndarray:
+        """``(leg, width)``: a ``(leg, product)`` quantity averaged over each class, by weight."""
+        return self._padded(
+            [c.class_means(per_leg_product[i], weights) for i, c in enumerate(self.classes)]
+        )
+
+    def _padded(self, rows: list[np.ndarray]) -> np.ndarray:
+        out = np.zeros((*np.shape(rows[0])[:-1], len(rows), self.width))
+        for i, row in enumerate(rows):
+            out[..., i, : np.shape(row)[-1]] = row
+        return out
 
 
-def leg_nests(
-    network: Network,
-    counted: np.ndarray,
+def leg_curves(batch: LegBatch, mean: np.ndarray, var: np.ndarray, law: str, n_seats: int):
+    """EMSR-b levels ``(..., leg, width-1)`` and seat values ``(..., leg, n_seats+1)``."""
+    return emsr_b_curve(batch.fares, batch.totals(mean), batch.totals(var), law, n_seats)
+
+
+def legs_value(
+    batch: LegBatch,
+    levels: np.ndarray,
+    seats: np.ndarray,
     mean: np.ndarray,
     var: np.ndarray,
-    capacity: np.ndarray,
     law: str,
-    n_buckets: int | None,
-) -> list[LegNest]:
-    """EMSR-b on every leg from counted fares and per-product demand moments (``(n,)``)."""
-    out = []
-    for i in range(network.n_legs):
-        classes = leg_classes(counted[i], mean, n_buckets)
-        levels, values = emsr_b_curve(
-            classes.fares,
-            classes.class_totals(mean),
-            classes.class_totals(var),
-            law,
-            int(capacity[i]),
-        )
-        out.append(LegNest(classes, levels, values))
-    return out
-
-
-def leg_revenue(
-    classes: LegClasses, levels: np.ndarray, seats: int, mean, var, law: str, shares: np.ndarray
+    shares: np.ndarray,
 ) -> float:
-    """Expected sales of nested levels on one leg alone (static model), at prorated shares."""
-    if classes.n_classes == 0 or seats == 0:
+    """Expected sales of nested levels on each leg alone (static model), at prorated shares.
+
+    ``levels`` ``(leg, width-1)`` is clipped to each leg's seats; padding classes sell nothing.
+    """
+    if batch.width == 0:
         return 0.0
-    m = classes.class_totals(mean)
-    sd = np.sqrt(classes.class_totals(var)) if law == "normal" else None
-    sales = nested_sales(demand_pmf(m, sd, law, seats), seats, levels)
-    return float(classes.class_means(shares, mean) @ sales)
+    m = batch.totals(mean)
+    sd = np.sqrt(batch.totals(var)) if law == "normal" else None
+    pmfs = demand_pmf_grid(m, sd, law, int(seats.max(initial=0)))
+    sales = nested_sales_batch(pmfs, seats, np.minimum(levels, seats[:, None]))
+    return float((batch.means(shares, mean) * sales).sum())
 
 
 def nested_variables(
     network: Network,
-    nests: list[LegNest],
+    batch: LegBatch,
     capacity: np.ndarray,
     n_bucket_dim: int,
     mean: np.ndarray,
@@ -131,28 +154,25 @@ def nested_variables(
 ) -> dict[str, np.ndarray]:
     """Protection levels, booking limits, buckets and the bid-price view in the schema's shape."""
     n_legs = network.n_legs
-    protection = np.repeat(capacity.astype(np.int64)[:, None], n_bucket_dim, axis=1)
-    bucket = np.full((n_legs, network.n_products), -1, dtype=np.int64)
+    x = capacity.astype(np.int64)
+    levels, values = leg_curves(batch, mean, var, law, int(x.max(initial=0)))
+    levels = np.minimum(levels, x[:, None])
+    protection = np.repeat(x[:, None], n_bucket_dim, axis=1)
     bucket_fare = np.full((n_legs, n_bucket_dim), np.nan)
-    bid = np.empty(n_legs)
-    value = 0.0
-    shares = prorated_fares(network)
-    for i, nest in enumerate(nests):
-        k = nest.classes.n_classes
-        protection[i, : max(k - 1, 0)] = nest.levels
-        bucket[i] = nest.classes.bucket
-        bucket_fare[i, :k] = nest.classes.fares
-        bid[i] = nest.seat_values[int(capacity[i])]
-        value += leg_revenue(nest.classes, nest.levels, int(capacity[i]), mean, var, law, shares[i])
+    for i, classes in enumerate(batch.classes):
+        k = classes.n_classes
+        protection[i, : max(k - 1, 0)] = levels[i, : max(k - 1, 0)]
+        bucket_fare[i, :k] = classes.fares
     limit = np.empty_like(protection)
-    limit[:, 0] = capacity
-    limit[:, 1:] = capacity[:, None] - protection[:, :-1]
+    limit[:, 0] = x
+    limit[:, 1:] = x[:, None] - protection[:, :-1]
+    shares = prorated_fares(network)
     return {
-        "value": np.float64(value),
-        "bid_price": bid,
+        "value": np.float64(legs_value(batch, levels, x, mean, var, law, shares)),
+        "bid_price": values[np.arange(n_legs), x],
         "protection_level": protection,
         "booking_limit": limit,
-        "bucket": bucket,
+        "bucket": np.array([c.bucket for c in batch.classes], dtype=np.int64),
         "bucket_fare": bucket_fare,
     }
 
@@ -168,8 +188,9 @@ def solve_nested(
     law = params["law"]
 
     def own_bid_prices(counted: np.ndarray) -> np.ndarray:
-        nests = leg_nests(net, counted, mean, var, problem.capacity, law, n_buckets)
-        return np.array([n.seat_values[int(x)] for n, x in zip(nests, problem.capacity, strict=True)])
+        x = problem.capacity
+        _, values = leg_curves(LegBatch.build(counted, mean, n_buckets), mean, var, law, int(x.max()))
+        return values[np.arange(net.n_legs), x]
 
     counted, displacement = counted_fares_for(
         problem,
@@ -179,8 +200,8 @@ def solve_nested(
         seed,
         own_bid_prices,
     )
-    nests = leg_nests(net, counted, mean, var, problem.capacity, law, n_buckets)
-    variables = nested_variables(net, nests, problem.capacity, n_bucket_dim, mean, var, law)
+    batch = LegBatch.build(counted, mean, n_buckets)
+    variables = nested_variables(net, batch, problem.capacity, n_bucket_dim, mean, var, law)
     variables["net_fare"] = counted
     return leg_output(variables, displacement)
 

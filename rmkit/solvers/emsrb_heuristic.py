@@ -38,16 +38,20 @@ from typing import Any
 
 import numpy as np
 
-from rmkit.fare_adjust import counted_fares_for, leg_classes, moments_to_come, prorated_fares
-from rmkit.leg_heuristics import emsr_b_curve, levels_from_seat_values
+from rmkit.fare_adjust import counted_fares_for, moments_to_come, prorated_fares
+from rmkit.leg_heuristics import levels_from_seat_values
 from rmkit.solver import Param, Problem, SolveOutput, Solver, Tags, register
 from rmkit.solvers.emsrb import (
     DISPLACEMENT_PARAMS,
     FARE_BASIS_PARAM,
     LAW_PARAM,
+    LegBatch,
+    leg_curves,
     leg_output,
-    leg_revenue,
+    legs_value,
 )
+
+CHUNK_CELLS = 4_000_000  # numbers per EMSR-b pass over a chunk of periods (~32 MB each)
 
 
 def non_negative_float(v: Any) -> bool:
@@ -83,21 +87,12 @@ class EmsrbHeuristicBidPrices(Solver):
         means, variances = moments_to_come(problem.demand.probabilities)
         # a request in period t is valued against the demand after it: rows t+1 .. T
         after_mean, after_var = means[t0 + 1 :], variances[t0 + 1 :]
-
-        def curves(counted: np.ndarray, rows: slice, seats: np.ndarray):
-            for i in range(net.n_legs):
-                classes = leg_classes(counted[i], means[t0], None)
-                _, values = emsr_b_curve(
-                    classes.fares,
-                    classes.class_totals(after_mean[rows]),
-                    classes.class_totals(after_var[rows]),
-                    law,
-                    int(seats[i]),
-                )
-                yield classes, values
+        legs = np.arange(net.n_legs)
 
         def own_bid_prices(counted: np.ndarray) -> np.ndarray:
-            return np.array([v[0, int(x[i])] for i, (_, v) in enumerate(curves(counted, slice(0, 1), x))])
+            batch = LegBatch.build(counted, means[t0], None)
+            _, values = leg_curves(batch, after_mean[0], after_var[0], law, int(x.max()))
+            return values[legs, x]
 
         counted, displacement = counted_fares_for(
             problem,
@@ -107,19 +102,27 @@ class EmsrbHeuristicBidPrices(Solver):
             seed,
             own_bid_prices,
         )
+        batch = LegBatch.build(counted, means[t0], None)
+        n_rows, top = after_mean.shape[0], net.max_capacity
+        values = np.empty((n_rows, net.n_legs, top + 1))
+        # periods in chunks: the EMSR-b pass holds (periods x legs x classes x seats) numbers
+        step = max(1, CHUNK_CELLS // max(1, net.n_legs * batch.width * top))
+        for a in range(0, n_rows, step):
+            rows = slice(a, a + step)
+            values[rows] = leg_curves(batch, after_mean[rows], after_var[rows], law, top)[1]
         scale = float(params["multiplier"])
-        table = np.full((after_mean.shape[0], net.max_capacity + 1, net.n_legs), np.nan)
-        value = 0.0
-        shares = prorated_fares(net)
-        for i, (classes, values) in enumerate(curves(counted, slice(None), net.capacities)):
-            c = int(net.capacities[i])
+        table = np.full((n_rows, top + 1, net.n_legs), np.nan)
+        for i, c in enumerate(net.capacities):
             table[:, 0, i] = np.inf
-            table[:, 1 : c + 1, i] = scale * values[:, 1:]
-            levels = levels_from_seat_values(table[0, : int(x[i]) + 1, i], classes.fares)
-            value += leg_revenue(classes, levels, int(x[i]), means[t0], variances[t0], law, shares[i])
+            table[:, 1 : c + 1, i] = scale * values[:, i, 1 : c + 1]
+        # the nested limits the solve period's (scaled) bid prices imply, for the value
+        first = np.where(np.arange(top + 1)[None, :] <= x[:, None], table[0].T, -np.inf)
+        levels = levels_from_seat_values(first, batch.fares)
+        shares = prorated_fares(net)
+        value = legs_value(batch, levels, x, means[t0], variances[t0], law, shares)
         variables = {
             "value": np.float64(value),
-            "bid_price": table[0, x, np.arange(net.n_legs)],
+            "bid_price": table[0, x, legs],
             "bid_price_table": table,
             "net_fare": counted,
         }
