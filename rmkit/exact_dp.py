@@ -14,7 +14,8 @@ j in period t with x seats left iff it is feasible and ``f_j >= V_{t+1}(x) - V_{
 
 The state grid is every ``0 <= x <= c`` for the network's full capacities c, flattened row-major
 (last leg fastest): ``s = sum_i x_i * stride_i``. The kernels (``rmkit._dp_kernels``) sweep it
-once per period; only two value layers live at once, plus the optimal decisions packed as bits.
+once per period; on one thread only two value layers live at once (the two-thread pipeline
+keeps ``2 * batch + 1``, within ``PIPELINE_SLOT_BYTES``), plus the optimal decisions as bits.
 
 Everything here first estimates memory and refuses problems above ``max_memory_gb``
 (:class:`rmkit.errors.ProblemTooLargeError`), pointing at the decomposition methods.
@@ -48,8 +49,8 @@ if TYPE_CHECKING:  # pragma: no cover
 #: Updates (state x product x period) per second assumed by the run-time estimate: a
 #: conservative figure for this kernel on one core of a current x86 machine.
 ESTIMATE_UPDATES_PER_SECOND = 1.5e9
-#: A period's grid must hold this many updates before splitting it over threads pays for the
-#: parallel launch (measured with benchmarks/bench_exact_dp.py).
+#: A period's grid must hold this many updates before the two-thread pipeline is used: threads
+#: meet once per batch of periods, and a batch must be long next to that hand-off.
 PARALLEL_MIN_UPDATES = 40_000
 DEFAULT_MAX_MEMORY_GB = 4.0
 #: States swept at a time by the kernel, so the tile being updated stays in the L1 cache.
