@@ -1,4 +1,9 @@
-"""``rmkit demo``: the main job on the bundled example scenario."""
+"""``rmkit demo``: the main job end to end on the bundled example scenario.
+
+Runs ``rmkit compare`` on the invented Tallowmere hub (4 legs, 12 products, 300 periods, small
+enough for the exact DP), writes the comparison as NetCDF and the figure as PNG into a folder and
+prints the ranked table and where the files went.
+"""
 
 from __future__ import annotations
 
@@ -6,9 +11,16 @@ import argparse
 from importlib import resources
 from pathlib import Path
 
-from rmkit.commands._common import CAUTION, add_json, emit_json, print_table
+from rmkit.commands._common import add_json, emit_json
+from rmkit.commands.compare import add_compare_options, print_report, report, run_comparison
 
-HELP = "run every available method on the bundled example and report the results"
+HELP = "compare every method on the bundled example; write the table, NetCDF and figure"
+
+#: Demo sizes: every method, 1000 paths each and no re-solves finish well within a minute here.
+DEMO_PATHS = 1000
+DEMO_RESOLVE = 0
+DATA_FILE = "comparison.nc"
+PLOT_FILE = "comparison.png"
 
 
 def example_path() -> Path:
@@ -17,47 +29,31 @@ def example_path() -> Path:
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    parser.add_argument("--seed", type=int, default=None, help="random seed (default: scenario's)")
+    add_compare_options(parser, paths=DEMO_PATHS, resolve=DEMO_RESOLVE)
+    parser.add_argument("--out-dir", default="rmkit-demo",
+                        help="folder for comparison.nc and comparison.png (default ./rmkit-demo)")
     add_json(parser)
 
 
 def run(args: argparse.Namespace) -> int:
-    from rmkit.commands.info import summary
+    from rmkit.commands._common import write_atomically, write_netcdf
+    from rmkit.errors import InputError
+    from rmkit.plots import comparison_figure
     from rmkit.scenario import load_scenario
-    from rmkit.solver import load_all
 
+    folder = Path(args.out_dir)
+    if folder.exists() and not folder.is_dir():
+        raise InputError(f"--out-dir: {folder} exists and is not a folder; pick another path")
     scenario = load_scenario(example_path())
-    seed = args.seed if args.seed is not None else scenario.default_seed
-    rows = []
-    for name, cls in sorted(load_all().items()):
-        solver = cls()
-        reason = solver.accepts(scenario.network, scenario.demand)
-        if reason is not None:
-            rows.append({"method": name, "skipped": reason})
-            continue
-        res = solver.solve(scenario.network, scenario.demand, seed=seed)
-        kind = "optimum" if cls.tags.exact else "upper bound" if cls.tags.upper_bound else "heuristic"
-        row = {"method": name, "kind": kind, "value": res.value, "seconds": res.seconds}
-        if cls.tags.gives_bid_prices:
-            row["bid_prices"] = dict(zip(scenario.network.leg_ids, res.bid_prices.tolist(),
-                                         strict=True))
-        rows.append(row)
-    info = summary(scenario)
+    ds = run_comparison(scenario, args, quiet=args.json)
+    folder.mkdir(parents=True, exist_ok=True)
+    data, plot = folder / DATA_FILE, folder / PLOT_FILE
+    write_netcdf(ds, data)
+    write_atomically(plot, lambda tmp: comparison_figure(ds, tmp))
     if args.json:
-        emit_json({"scenario": str(example_path()), "info": info, "methods": rows})
+        emit_json({"example": str(example_path()), **report(ds, str(data), str(plot))})
         return 0
     print(f"Example scenario: {example_path()}")
-    legs = scenario.network.leg_ids
-    print_table(
-        f"{info['scenario']}: {info['legs']} legs, {info['products']} products, "
-        f"{info['periods']} periods, alpha = {info['alpha']:.3f}",
-        ["method", "kind", "value", "seconds", *legs],
-        [
-            [r["method"], r.get("kind", "skipped: " + r.get("skipped", "")), r.get("value"),
-             r.get("seconds"), *[r.get("bid_prices", {}).get(leg) for leg in legs]]
-            for r in rows
-        ],
-        note="Bid price columns: value of one seat on each leg at the start of the horizon.\n"
-        + CAUTION,
-    )
+    print_report(ds, str(data), str(plot))
+    print(f"Outputs: {data.resolve()} (open with xarray.open_dataset) and {plot.resolve()}")
     return 0
