@@ -264,6 +264,19 @@ def test_lr_on_one_leg_equals_the_exact_optimum():
     assert quiet_solve("lr", net2, dem2).value == pytest.approx(exact_value(net2, dem2), rel=1e-12)
 
 
+def test_lr_with_capacity_to_spare_is_exact_at_once():
+    """Every request can be sold: optimum = DLP = sum_j f_j E[D_j] (by hand); one iteration."""
+    net = Network.build([("A", 6), ("B", 6)],
+                        [("a", 80.0, ["A"]), ("ab", 150.0, ["A", "B"]), ("b", 60.0, ["B"])])
+    dem = DemandModel(np.tile([0.2, 0.3, 0.1], (5, 1)))
+    res = quiet_solve("lr", net, dem)
+    expected = float(net.fares @ dem.demand_to_come(0))
+    assert res.status == "optimal" and res.payload["iterations"] == 1
+    assert res.value == pytest.approx(expected, rel=1e-12)
+    assert res["gap_history"][-1] <= 1e-12
+    assert get_solver("dlp").solve(net, dem).value == pytest.approx(expected, rel=1e-9)
+
+
 @pytest.mark.parametrize("seed", range(5))
 def test_exact_le_lr_le_dlp_and_lr_reaches_the_lp_minimum(seed):
     net, dem = random_problem(seed, n_legs=3, max_capacity=3, n_products=6, n_periods=8)

@@ -191,7 +191,15 @@ def minimise_bound(
             break
         norm2 = split_direction(prob, accept, legs, direction)
         if norm2 <= 0.0:
-            continue  # cannot happen with gap > 0 (equal sales make the mix certify the value)
+            # Every leg of every product sells it with the same probability: this subgradient
+            # lies in the normal cone of the split constraints, so lambda is a minimiser (and
+            # this policy alone certifies its value).
+            lower = record = value
+            best[...] = lam
+            gaps[-1] = 0.0
+            bounds[-1] = record
+            status = "optimal"
+            break
         # Goffin & Kiwiel (1999) path-based target level.
         if k == 0:
             reference = record
