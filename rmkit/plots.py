@@ -94,7 +94,9 @@ def comparison_figure(
         fig.legend(list(seen.values()), list(seen), loc="outside right upper", fontsize=9,
                    frameon=True, title="bid prices")
         _revenue_panel(fig.add_subplot(grid[1, :]), ds, colours)
-        title = f"{ds.attrs.get('scenario', '')}: methods against the optimum"
+        against = {"optimum": "the optimum", "best bound": "the best upper bound"}.get(
+            ds.attrs.get("reference_kind", ""), "each other")
+        title = f"{ds.attrs.get('scenario', '')}: methods against {against}"
         sub = (f"{ds.attrs.get('paths', '?')} simulated paths, common random numbers, "
                f"{ds.attrs.get('resolve', 0)} re-solves, seed {ds.attrs.get('seed', '?')}")
         fig.suptitle(f"{title}\n{sub}", fontsize=12)

@@ -303,7 +303,8 @@ def test_cli_json_netcdf_and_plot(tmp_path):
     with xr.open_dataset(out) as back:
         assert back.method.values.tolist() == ["dlp", "exact", "emsrb-heuristic"]
     assert plot.read_bytes()[:4] == b"\x89PNG"
-    table = _rmkit("compare", str(scenario), "--methods", "dlp,exact", "--paths", "50")
+    table = _rmkit("compare", str(scenario), "--methods", "dlp,exact", "--paths", "50",
+                   "--param", "dlp.dual=\"min\"")
     assert table.returncode == 0 and "gap to optimum" in table.stdout
 
 
@@ -312,6 +313,10 @@ def test_cli_bad_input(tmp_path):
     assert bad.returncode == 2 and "valid methods" in bad.stderr and "Traceback" not in bad.stderr
     bad = _rmkit("compare", str(EXAMPLE), "--methods", "dlp", "--out", str(tmp_path / "x.txt"))
     assert bad.returncode == 2 and "--out" in bad.stderr
+    bad = _rmkit("compare", str(EXAMPLE), "--methods", "dlp", "--param", "dlp.colour=1")
+    assert bad.returncode == 2 and "valid parameters" in bad.stderr
+    bad = _rmkit("compare", str(EXAMPLE), "--methods", "dlp", "--param", "lr.tol=0.1")
+    assert bad.returncode == 2 and "not among the methods compared" in bad.stderr
 
 
 def test_demo_writes_its_outputs(tmp_path):

@@ -33,6 +33,24 @@ def add_compare_options(parser: argparse.ArgumentParser, *, paths: int | None = 
     parser.add_argument("--seed", type=int, default=None, help="random seed (default: scenario's)")
     parser.add_argument("--visit-paths", type=int, default=None,
                         help="paths that estimate where the optimal policy goes (default 200)")
+    parser.add_argument("--param", action="append", default=[], metavar="METHOD.NAME=VALUE",
+                        help="a method setting (repeatable), e.g. lr.max_iterations=500; VALUE "
+                        "is read as JSON when it parses")
+
+
+def parse_method_params(items: list[str]) -> dict[str, dict[str, Any]]:
+    """``METHOD.NAME=VALUE`` items as method -> settings."""
+    from rmkit.commands._common import parse_params
+    from rmkit.errors import InputError
+
+    out: dict[str, dict[str, Any]] = {}
+    for item in items:
+        key, sep, raw = item.partition("=")
+        method, dot, name = key.partition(".")
+        if not (sep and dot and method and name):
+            raise InputError(f"--param: expected METHOD.NAME=VALUE, got {item!r}")
+        out.setdefault(method, {}).update(parse_params([f"{name}={raw}"]))
+    return out
 
 
 def add_outputs(parser: argparse.ArgumentParser) -> None:
@@ -55,6 +73,7 @@ def run_comparison(scenario: Any, args: argparse.Namespace, quiet: bool):
 
     return compare(scenario.network, scenario.demand, methods=args.methods, paths=paths,
                    resolve=resolve, seed=seed, visit_paths=visit_paths, scenario=scenario.name,
+                   settings=parse_method_params(args.param),
                    progress=None if quiet else progress)
 
 
