@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 from typing import Any
 
-from rmkit.commands._common import CAUTION, add_json, add_scenario, emit_json, load, print_table
+from rmkit.commands._common import CAUTION, add_json, add_scenario, emit_json, load
 
 HELP = "tune a heuristic's settings (multiplier, fare basis, buckets, re-solves) for revenue"
 
@@ -64,25 +64,35 @@ def run(args: argparse.Namespace) -> int:
     if args.json:
         emit_json(out)
         return 0
-    ref = out["reference"]
-    searched = out["searched"]
-    rows = [
-        [label, _fmt_setting(row["setting"], searched), row["revenue"], row["fresh_revenue"],
-         row["fresh_stderr"], row["fresh_gap_percent"]]
-        for label, row in (("default", out["default"]), ("tuned", out["tuned"]))
-    ]
-    if ref["kind"] != "none":
-        rows.append([ref["kind"], ref["method"], ref["value"], None, None, None])
-    imp = out["improvement_fresh"]
-    print_table(
-        f"{scenario.name}: calibrating {args.heuristic} on {paths} paths (seed {seed}), "
-        f"{out['evaluations']} settings tried",
-        ["", "setting", "revenue (search paths)", f"revenue (fresh, seed {out['fresh_seed']})",
-         "std. error", "gap %"],
-        rows,
-        note=(f"tuned - default on the fresh paths: {imp['mean']:,.2f} "
-              f"(95% CI {imp['ci_low']:,.2f} .. {imp['ci_high']:,.2f}, paired)\n"
-              "Only the fresh-path figures estimate what tuning buys; the search paths favour "
-              "the winner.\n" + CAUTION),
-    )
+    print_report(out, scenario.name, paths, seed)
     return 0
+
+
+def print_report(out: dict[str, Any], name: str, paths: int, seed: int) -> None:
+    from rich.table import Table
+
+    from rmkit.commands.compare import print_wide
+
+    ref, searched = out["reference"], out["searched"]
+    table = Table(title=f"{name}: calibrating {out['heuristic']} on {paths} paths (seed {seed}), "
+                  f"{out['evaluations']} settings tried", title_justify="left")
+    for k, col in enumerate(["", "setting", "revenue (search paths)",
+                             f"revenue (fresh paths, seed {out['fresh_seed']})", "std. error",
+                             "gap %"]):
+        table.add_column(col, justify="left" if k < 2 else "right")
+    for label in ("default", "tuned"):
+        row = out[label]
+        table.add_row(label, _fmt_setting(row["setting"], searched), f"{row['revenue']:,.1f}",
+                      f"{row['fresh_revenue']:,.1f}", f"{row['fresh_stderr']:,.1f}",
+                      "-" if row["fresh_gap_percent"] is None
+                      else f"{row['fresh_gap_percent']:.2f}")
+    if ref["kind"] != "none":
+        table.add_row(ref["kind"], ref["method"], f"{ref['value']:,.1f}", "-", "-", "-")
+    imp = out["improvement_fresh"]
+    print_wide(table, [
+        f"tuned - default on the fresh paths: {imp['mean']:,.2f} (95% CI {imp['ci_low']:,.2f} .. "
+        f"{imp['ci_high']:,.2f}, paired)",
+        "Only the fresh-path figures estimate what tuning buys; the search paths favour the "
+        "winner.",
+        CAUTION,
+    ])

@@ -147,7 +147,6 @@ def table_rows(ds) -> tuple[list[list[str]], list[str]]:
 
 
 def print_report(ds, out: str | None, plot: str | None) -> None:
-    from rich.console import Console
     from rich.table import Table
 
     from rmkit.compare import ranked
@@ -178,8 +177,15 @@ def print_report(ds, out: str | None, plot: str | None) -> None:
         if target:
             notes.append(f"{label} written to {target}")
     notes.append(CAUTION)
+    print_wide(table, notes)
+
+
+def print_wide(table, notes: list[str]) -> None:
+    """Print a rich table and notes; to pipes and files wide enough that no cell wraps."""
+    from rich.console import Console
+
     console = Console()
-    if not console.is_terminal:  # pipes and files: wide enough that no cell wraps
+    if not console.is_terminal:
         console = Console(width=160)
     console.print(table)
     console.print("\n".join(notes), style="dim")
