@@ -161,6 +161,11 @@ def test_two_workers_give_the_same_numbers_as_one(tmp_path, reference, two_worke
     again = run_sweep(grid, tmp_path / "store", scheduler=cluster.scheduler_address,
                       progress=False)
     assert again.computed == 0 and again.resumed == N_CELLS
+    # --retry-failed recomputes exactly the failed cells, and they stay stored once
+    retry = run_sweep(grid, tmp_path / "store", scheduler=cluster.scheduler_address,
+                      retry_failed=True, progress=False)
+    assert (retry.computed, retry.resumed, retry.failed) == (4, N_CELLS - 4, 4)
+    stored_once(tmp_path / "store")
 
 
 def test_killed_worker_mid_sweep_loses_and_duplicates_nothing(tmp_path, reference, two_workers):
