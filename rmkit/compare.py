@@ -443,6 +443,7 @@ def compare(
     seed: int = 0,
     settings: Mapping[str, Mapping[str, Any]] | None = None,
     visit_paths: int = DEFAULT_VISIT_PATHS,
+    with_exact: bool = True,
     scenario: str = "",
     progress: Callable[[str], None] | None = None,
 ) -> xr.Dataset:
@@ -462,6 +463,9 @@ def compare(
         Method name -> its settings.
     visit_paths
         How many of the streams estimate the optimal policy's visit distribution.
+    with_exact
+        When ``exact`` is not among ``methods`` but fits, still solve it as the yardstick of the
+        errors and gaps (it is then not a row of the result).
 
     Returns
     -------
@@ -500,11 +504,13 @@ def compare(
                           RuntimeWarning, stacklevel=2)
     frame = _Frame(network, demand, paths)
     exact = next((r for r in runs if r.status == "ran" and r.kind == "optimum"), None)
+    if exact is None and with_exact:
+        exact = _background_exact(network, demand, seed, progress)
     if exact is not None:
         if progress:
             progress("exact values where the optimal policy goes")
         _exact_errors(frame, exact, min(visit_paths, paths), seed)
-    frame.reference = _reference(runs)
+    frame.reference = _reference([*runs, exact] if exact is not None else runs)
     frame.best = _best_policy(runs)
     ds = _assemble(frame, runs)
     ds.attrs.update(
@@ -546,6 +552,24 @@ def _exact_errors(frame: _Frame, exact: MethodRun, visit_paths: int, seed: int) 
         f"visit-weighted over {visits.size} (period, state) pairs the optimal policy visits on "
         f"{visit_paths} simulated paths; static bid prices as solved at period 0"
     )
+
+
+def _background_exact(network: Network, demand: DemandModel, seed: int,
+                      progress: Callable[[str], None] | None) -> MethodRun | None:
+    """The exact DP as the yardstick when it fits but was not asked for (not in the table)."""
+    from rmkit.errors import ProblemTooLargeError
+    from rmkit.solver import get_solver
+
+    solver = get_solver("exact")
+    if solver.accepts(network, demand) is not None:
+        return None
+    if progress:
+        progress("solving exact (the yardstick)")
+    try:
+        result = solver.solve(network, demand, seed=seed)
+    except (ProblemTooLargeError, SolverError):
+        return None
+    return MethodRun(name="exact", kind="optimum", status="ran", solver=solver, result=result)
 
 
 def _reference(runs: Sequence[MethodRun]) -> tuple[str, str, float]:

@@ -326,3 +326,15 @@ def test_demo_writes_its_outputs(tmp_path):
     assert (tmp_path / "out" / "comparison.nc").exists()
     assert (tmp_path / "out" / "comparison.png").read_bytes()[:4] == b"\x89PNG"
     assert str(tmp_path / "out") in done.stdout
+
+
+def test_exact_is_the_yardstick_even_when_not_listed(problem):
+    net, dem = problem
+    ds = compare(net, dem, methods=["dlp"], paths=50, seed=1, visit_paths=20)
+    assert ds.method.values.tolist() == ["dlp"]
+    assert ds.attrs["reference_kind"] == "optimum"
+    optimum = brute_force_values(net, dem)[0][tuple(int(c) for c in net.capacities)]
+    assert ds.attrs["reference_value"] == pytest.approx(optimum, rel=1e-9)
+    assert float(_row(ds, "dlp")["bid_price_error_mean"]) > 0
+    alone = compare(net, dem, methods=["dlp"], paths=50, seed=1, with_exact=False)
+    assert alone.attrs["reference_kind"] == "best bound" and "visit_weight" not in alone
