@@ -332,9 +332,9 @@ def visit_weighted_errors(
     ``method_cost`` defaults to the sum of the method's leg bid prices over each product's legs.
     """
     a = np.asarray(incidence)
-    if method_cost is None:
-        with np.errstate(invalid="ignore"):
-            method_cost = np.asarray(method_leg) @ a
+    if method_cost is None:  # sum over the product's own legs only (+inf elsewhere must not leak)
+        method_cost = np.where(a[None, :, :] > 0, np.asarray(method_leg)[:, :, None], 0.0).sum(
+            axis=1)
     leg_mask = visits.state >= 1
     cost_mask = np.all(visits.state[:, :, None] >= a[None, :, :], axis=1)
     out: dict[str, float] = {}

@@ -73,9 +73,12 @@ def test_dataset_layout(ds, problem):
     assert float(_row(ds, "exact")["value"]) == pytest.approx(optimum, rel=1e-9)
     assert float(_row(ds, "dlp")["value"]) >= optimum - 1e-7
     assert float(ph["value"]) >= optimum - 3 * float(ph["value_stderr"])
-    # every simulated policy was re-checked against capacity
+    # every simulated policy was re-checked against capacity; every error is a number
     for name in ("exact", "dlp", "emsrb-heuristic"):
         assert str(_row(ds, name)["check"].values) == "ok"
+        for var in ("bid_price_error_mean", "bid_price_error_max",
+                    "opportunity_cost_error_mean", "opportunity_cost_error_max"):
+            assert np.isfinite(float(_row(ds, name)[var])), (name, var)
 
 
 def test_round_trip_through_netcdf(ds, tmp_path):
