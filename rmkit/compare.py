@@ -709,9 +709,10 @@ def _assemble(frame: _Frame, runs: Sequence[MethodRun]):
     ds = ds.assign_coords(method=np.array([r.name for r in runs], dtype=object))
     if frame.visits is not None:
         v = frame.visits
-        ds["visit_period"] = ("visit", v.period, {"description": "period of a visited state"})
-        ds["visit_capacity"] = (("visit", "leg"), v.state, {"units": "seats",
-                                                           "description": "seats left"})
+        ds["visit_period"] = ("visit", v.period.astype(np.int32),
+                              {"description": "period of a visited state"})
+        ds["visit_capacity"] = (("visit", "leg"), v.state.astype(np.int32),
+                                {"units": "seats", "description": "seats left"})
         ds["visit_weight"] = ("visit", v.weight, {"description": "share of (path, period) pairs"})
         ds["exact_bid_price"] = (("visit", "leg"), v_inf_to_nan(frame.exact_leg),
                                  {"units": "currency per seat",
@@ -719,6 +720,14 @@ def _assemble(frame: _Frame, runs: Sequence[MethodRun]):
         ds["exact_opportunity_cost"] = (("visit", "product"), v_inf_to_nan(frame.exact_cost),
                                         {"units": "currency", "description":
                                          "V_{t+1}(x) - V_{t+1}(x - A_j); NaN where not sellable"})
+        ds["exact_bid_price_table"] = (
+            ("period", "capacity", "leg"),
+            exact_bid_price_table(v, frame.exact_leg, frame.network, frame.demand.n_periods),
+            {"units": "currency per seat", "description": "exact bid price by period and seats "
+             "left on the leg: visit-weighted mean over the states the optimal policy visits"})
+    for name, var in ds.data_vars.items():  # compressed when written to NetCDF
+        if var.ndim and var.dtype.kind in "fi":
+            ds[name].encoding.update({"zlib": True, "complevel": 4})
     return ds
 
 

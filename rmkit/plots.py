@@ -108,6 +108,12 @@ def comparison_figure(
 
 def _bid_price_panel(ax: Any, ds: xr.Dataset, leg: str, seats: int, colours: dict) -> None:
     periods = ds.period.values
+    kinds = [str(k) for k in ds["kind"].values]
+    if "optimum" not in kinds and "exact_bid_price_table" in ds:  # the yardstick, not a row
+        exact = ds["exact_bid_price_table"].sel(leg=leg, capacity=seats).values
+        if np.isfinite(exact).any():
+            ax.plot(periods, exact, color="black", lw=2.4, label="exact (optimal policy)",
+                    zorder=5)
     for q, name in enumerate(ds.method.values.tolist()):
         d = ds.isel(method=q)
         if str(d["status"].values) != "ran":

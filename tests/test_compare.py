@@ -339,5 +339,7 @@ def test_exact_is_the_yardstick_even_when_not_listed(problem):
     optimum = brute_force_values(net, dem)[0][tuple(int(c) for c in net.capacities)]
     assert ds.attrs["reference_value"] == pytest.approx(optimum, rel=1e-9)
     assert float(_row(ds, "dlp")["bid_price_error_mean"]) > 0
+    table = ds["exact_bid_price_table"].values
+    assert np.isinf(table[:, 0, :]).all() and np.isfinite(table[:, 1:, :]).any()
     alone = compare(net, dem, methods=["dlp"], paths=50, seed=1, with_exact=False)
     assert alone.attrs["reference_kind"] == "best bound" and "visit_weight" not in alone
