@@ -146,6 +146,9 @@ def write_atomically(path: str | Path, writer: Callable[[str], None]) -> Path:
     os.close(fd)
     try:
         writer(tmp)
+        umask = os.umask(0)
+        os.umask(umask)
+        os.chmod(tmp, 0o666 & ~umask)  # mkstemp makes files owner-only; give the usual mode
         os.replace(tmp, target)
     finally:
         if os.path.exists(tmp):
