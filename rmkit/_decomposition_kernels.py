@@ -134,12 +134,14 @@ def step_and_project(
     product_legs: np.ndarray,
     prob: np.ndarray,
     work: np.ndarray,
+    lam_out: np.ndarray,
 ) -> None:
-    """``lam -= step * direction`` on multi-leg products, then project each (t, j) split.
+    """``lam_out = projection of lam - step * direction`` for multi-leg products and p > 0.
 
     The projection is the Euclidean one onto ``{lambda >= 0, sum over the legs = fare}`` (a
-    scaled simplex; sort-based, Held, Wolfe & Crowder 1974). ``work`` is a scratch array with
-    at least ``product_legs.shape[1]`` entries.
+    scaled simplex; sort-based, Held, Wolfe & Crowder 1974). Other entries of ``lam_out`` are
+    left as they are (``lam_out`` may be ``lam``). ``work`` is a scratch array with at least
+    ``product_legs.shape[1]`` entries.
     """
     n_periods, n_products = prob.shape
     for j in range(n_products):
@@ -162,7 +164,7 @@ def step_and_project(
                 if srt[m] - cand > 0.0:
                     theta = cand
             for m in range(k):
-                lam[product_legs[j, m], t, j] = max(work[m] - theta, 0.0)
+                lam_out[product_legs[j, m], t, j] = max(work[m] - theta, 0.0)
 
 
 @njit(cache=True)

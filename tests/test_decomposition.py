@@ -190,9 +190,11 @@ def test_kernels_match_their_py_func():
     np.testing.assert_array_equal(d_a, d_b)
     lam = rng.uniform(0, 100, acc.shape)
     lam_a, lam_b = lam.copy(), lam.copy()
-    step_and_project(lam_a, d_a, 30.0, net.fares, legs, p, np.empty(3))
-    step_and_project.py_func(lam_b, d_a, 30.0, net.fares, legs, p, np.empty(3))
-    np.testing.assert_array_equal(lam_a, lam_b)
+    out_a, out_b = lam.copy(), lam.copy()
+    step_and_project(lam_a, d_a, 30.0, net.fares, legs, p, np.empty(3), out_a)
+    step_and_project.py_func(lam_b, d_a, 30.0, net.fares, legs, p, np.empty(3), out_b)
+    np.testing.assert_array_equal(out_a, out_b)
+    np.testing.assert_array_equal(lam_a, lam)  # the input is read only
     avg_a, avg_b = np.full_like(acc, 0.05), np.full_like(acc, 0.05)
     lb_a = average_and_lower_bound(acc, avg_a, 0.25, net.fares, legs)
     lb_b = average_and_lower_bound.py_func(acc, avg_b, 0.25, net.fares, legs)
@@ -211,7 +213,7 @@ def test_projection_onto_scaled_simplex():
     for _ in range(20):
         y = rng.uniform(-60, 120, 3)
         lam = y.reshape(3, 1, 1).copy()
-        step_and_project(lam, np.zeros_like(lam), 0.0, net.fares, legs, prob, np.empty(3))
+        step_and_project(lam, np.zeros_like(lam), 0.0, net.fares, legs, prob, np.empty(3), lam)
         z = lam.ravel()
         assert z.sum() == pytest.approx(90.0) and z.min() >= 0
         # KKT: z = max(y - theta, 0) for one theta

@@ -41,11 +41,12 @@ certified gap), or after ``max_iterations`` (status ``iteration_limit`` plus a w
 bound is valid in every case, only less tight.
 
 Start: each fare split over its legs in proportion to the legs' DLP duals at the state (equal
-shares where they are all zero). With ``warm_start=True`` the start is instead the multipliers
-of the full-capacity, period-0 solve of the same network and demand objects (solved once with
-the same settings and cached by object identity), restricted to the remaining periods: the
-simulator's mid-horizon re-solves then begin near the answer, and the result is still a function
-of the inputs alone (it does not depend on which solves ran before).
+shares where they are all zero). With ``warm_start=True`` the solve also considers the
+multipliers of the full-capacity, period-0 solve of the same network and demand objects (solved
+once with the same settings and cached by object identity), restricted to the remaining
+periods, and starts from whichever of the two gives the lower bound (one extra pass of the leg
+DPs). The result is still a function of the inputs alone: it does not depend on which solves
+ran before. When the stored multipliers win, the step rule starts with a small level gap.
 
 The value is the bound; the leg value functions at the best multipliers give capacity- and
 time-dependent bid prices ``v_i(t+1, x) - v_i(t+1, x-1)``.
@@ -61,7 +62,7 @@ from typing import Any
 
 import numpy as np
 
-from rmkit.decomposition import bid_prices_at, leg_tables, product_legs, value_at
+from rmkit.decomposition import bid_prices_at, leg_tables, leg_values, product_legs, value_at
 from rmkit.network import Network
 from rmkit.solver import (
     Param,
@@ -152,7 +153,11 @@ def minimise_bound(
     legs = product_legs(network)
     n_legs, n_periods, n_products = start.shape
     width = network.max_capacity + 1
-    lam = np.array(start, dtype=np.float64, order="C", copy=True)
+    # Three buffers of multipliers (current, best, next): a new record is kept by reference and
+    # the next iterate written into a free buffer, so no (L, T, n) copy per iteration. Entries
+    # the step never writes (single-leg products, p = 0, other legs) are equal in all three.
+    buffers = [np.array(start, dtype=np.float64, order="C", copy=True) for _ in range(3)]
+    current = best = 0
     values = np.empty((n_legs, n_periods + 1, width))
     occupancy = np.empty((n_legs, n_periods + 1, width))
     accept = np.empty((n_legs, n_periods, n_products))
@@ -162,7 +167,6 @@ def minimise_bound(
     leg_index = np.arange(n_legs)
 
     record, lower = math.inf, -math.inf
-    best = lam.copy()
     bounds: list[float] = []
     gaps: list[float] = []
     reference = delta = path_bound = math.nan
@@ -170,12 +174,12 @@ def minimise_bound(
     restart = 0
     status = "iteration_limit"
     for k in range(max_iterations):
+        lam = buffers[current]
         leg_values_batch(prob, lam, caps, values)
         value = float(values[leg_index, 0, x].sum())
         leg_acceptance_batch(prob, lam, caps, x, values, occupancy, accept)
         if value < record:
-            record = value
-            best[...] = lam
+            record, best = value, current
         if k + 1 == 2 * restart or k == 0:  # restart the policy mix at iterations 1, 2, 4, ...
             restart = k + 1
         weight = 1.0 / (k + 2 - restart)
@@ -195,7 +199,7 @@ def minimise_bound(
             # lies in the normal cone of the split constraints, so lambda is a minimiser (and
             # this policy alone certifies its value).
             lower = record = value
-            best[...] = lam
+            best = current
             gaps[-1] = 0.0
             bounds[-1] = record
             status = "optimal"
@@ -213,11 +217,13 @@ def minimise_bound(
         if k == 0:
             path_bound = PATH_FACTOR * length
         path += length
+        following = next(b for b in range(3) if b not in (current, best))
         step_and_project(lam, direction, step_factor * (value - target) / norm2, fares, legs,
-                         prob, work)
-    leg_values_batch(prob, best, caps, values)
+                         prob, work, buffers[following])
+        current = following
+    leg_values_batch(prob, buffers[best], caps, values)
     return LagrangianRun(
-        multiplier=best,
+        multiplier=buffers[best],
         values=values.copy(),
         bound=record,
         lower_bound=lower,
@@ -225,6 +231,12 @@ def minimise_bound(
         gap_history=np.array(gaps),
         status=status,
     )
+
+
+def _bound_at(network: Network, problem: Problem, lam: np.ndarray) -> float:
+    """The Lagrangian bound at the state for the split ``lam`` (one pass of the leg DPs)."""
+    values = leg_values(problem.probabilities, lam, network)
+    return float(value_at(values, problem.capacity).sum())
 
 
 def _run_settings(params: dict[str, Any]) -> dict[str, Any]:
@@ -264,13 +276,15 @@ class LagrangianRelaxation(Solver):
 
     def _solve(self, problem: Problem, params: dict[str, Any], seed: int | None) -> SolveOutput:
         network, demand = problem.network, problem.demand
+        start = self._dual_start(problem)
+        warm = False
         if params["warm_start"]:
-            start = self._period_zero_multipliers(network, demand, params)[:, problem.period :, :]
-        else:
-            start = self._dual_start(problem)
+            stored = self._period_zero_multipliers(network, demand, params)[:, problem.period :, :]
+            if _bound_at(network, problem, stored) < _bound_at(network, problem, start):
+                start, warm = stored, True
         run = minimise_bound(
             network, problem.probabilities, problem.capacity, start,
-            **_run_settings(params), warm=params["warm_start"],
+            **_run_settings(params), warm=warm,
         )
         return self._output(problem, run, params)
 
