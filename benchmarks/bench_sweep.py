@@ -91,9 +91,12 @@ def main() -> None:
         n_cells = int(one["value"].size)
         print(f"sweep of {n_cells} cells ({len(files)} instances x ph bound, 500-path dlp policy "
               f"with 5 re-solves) on {os.cpu_count()} CPUs")
-        print(f"{'workers':>8} {'wall s':>9} {'cell s (sum)':>13} {'load avg before':>16}")
+        # busy workers = cell seconds / wall: how many workers computed on average; less sensitive
+        # than wall time to other jobs slowing the cells themselves
+        print(f"{'workers':>8} {'wall s':>9} {'cell s (sum)':>13} {'busy workers':>13} "
+              f"{'load avg before':>16}")
         for workers, wall, cell_s, load in rows:
-            print(f"{workers:>8} {wall:>9.1f} {cell_s:>13.1f} {load:>16.2f}")
+            print(f"{workers:>8} {wall:>9.1f} {cell_s:>13.1f} {cell_s / wall:>13.2f} {load:>16.2f}")
         speedup = rows[0][1] / rows[1][1]
         print(f"speed-up 2 workers vs 1: {speedup:.2f}x (goal >= 1.7x)")
         print(f"identical numbers with 1 and 2 workers: {same}")
