@@ -141,7 +141,7 @@ def step_and_project(
     The projection is the Euclidean one onto ``{lambda >= 0, sum over the legs = fare}`` (a
     scaled simplex; sort-based, Held, Wolfe & Crowder 1974). Other entries of ``lam_out`` are
     left as they are (``lam_out`` may be ``lam``). ``work`` is a scratch array with at least
-    ``product_legs.shape[1]`` entries.
+    ``2 * product_legs.shape[1]`` entries.
     """
     n_periods, n_products = prob.shape
     for j in range(n_products):
@@ -155,13 +155,24 @@ def step_and_project(
             for m in range(k):
                 i = product_legs[j, m]
                 work[m] = lam[i, t, j] - step * direction[i, t, j]
-            srt = np.sort(work[:k])[::-1]
+            if k == 2:  # the usual case: a clip on the segment
+                first = min(max(0.5 * (work[0] - work[1] + f), 0.0), f)
+                lam_out[product_legs[j, 0], t, j] = first
+                lam_out[product_legs[j, 1], t, j] = f - first
+                continue
+            for m in range(k):  # insertion sort, descending, into work[k:2k]
+                y = work[m]
+                pos = k + m
+                while pos > k and work[pos - 1] < y:
+                    work[pos] = work[pos - 1]
+                    pos -= 1
+                work[pos] = y
             cum = 0.0
             theta = 0.0
             for m in range(k):
-                cum += srt[m]
+                cum += work[k + m]
                 cand = (cum - f) / (m + 1)
-                if srt[m] - cand > 0.0:
+                if work[k + m] - cand > 0.0:
                     theta = cand
             for m in range(k):
                 lam_out[product_legs[j, m], t, j] = max(work[m] - theta, 0.0)

@@ -191,8 +191,8 @@ def test_kernels_match_their_py_func():
     lam = rng.uniform(0, 100, acc.shape)
     lam_a, lam_b = lam.copy(), lam.copy()
     out_a, out_b = lam.copy(), lam.copy()
-    step_and_project(lam_a, d_a, 30.0, net.fares, legs, p, np.empty(3), out_a)
-    step_and_project.py_func(lam_b, d_a, 30.0, net.fares, legs, p, np.empty(3), out_b)
+    step_and_project(lam_a, d_a, 30.0, net.fares, legs, p, np.empty(6), out_a)
+    step_and_project.py_func(lam_b, d_a, 30.0, net.fares, legs, p, np.empty(6), out_b)
     np.testing.assert_array_equal(out_a, out_b)
     np.testing.assert_array_equal(lam_a, lam)  # the input is read only
     avg_a, avg_b = np.full_like(acc, 0.05), np.full_like(acc, 0.05)
@@ -206,21 +206,23 @@ def test_projection_onto_scaled_simplex():
     """Optimality conditions of the Euclidean projection, and scipy's SLSQP as a cross-check."""
     from scipy.optimize import minimize
 
-    net = Network.build([("A", 1), ("B", 1), ("C", 1)], [("ABC", 90.0, ["A", "B", "C"])])
-    legs = product_legs(net)
+    three = Network.build([("A", 1), ("B", 1), ("C", 1)], [("ABC", 90.0, ["A", "B", "C"])])
+    two = Network.build([("A", 1), ("B", 1)], [("AB", 90.0, ["A", "B"])])  # the clip fast path
     prob = np.array([[0.5]])
     rng = np.random.default_rng(4)
-    for _ in range(20):
-        y = rng.uniform(-60, 120, 3)
-        lam = y.reshape(3, 1, 1).copy()
-        step_and_project(lam, np.zeros_like(lam), 0.0, net.fares, legs, prob, np.empty(3), lam)
+    for trial in range(40):
+        net = three if trial % 2 else two
+        legs = product_legs(net)
+        y = rng.uniform(-60, 150, net.n_legs)
+        lam = y.reshape(net.n_legs, 1, 1).copy()
+        step_and_project(lam, np.zeros_like(lam), 0.0, net.fares, legs, prob, np.empty(6), lam)
         z = lam.ravel()
         assert z.sum() == pytest.approx(90.0) and z.min() >= 0
         # KKT: z = max(y - theta, 0) for one theta
         theta = (y - z)[z > 0]
         assert np.ptp(theta) < 1e-9 and np.all(y[z == 0] <= theta[0] + 1e-9)
-        ref = minimize(lambda v, y=y: ((v - y) ** 2).sum(), np.full(3, 30.0), method="SLSQP",
-                       bounds=[(0, None)] * 3,
+        ref = minimize(lambda v, y=y: ((v - y) ** 2).sum(), np.full(y.size, 30.0),
+                       method="SLSQP", bounds=[(0, None)] * y.size,
                        constraints=[{"type": "eq", "fun": lambda v: v.sum() - 90.0}]).x
         np.testing.assert_allclose(z, ref, atol=1e-3)
 
