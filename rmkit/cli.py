@@ -15,7 +15,8 @@ from rmkit.errors import InputError, SolverError
 
 #: Subcommand modules, in the order ``rmkit --help`` lists them. Each defines
 #: ``HELP``, ``add_arguments(parser)`` and ``run(args) -> int``.
-COMMANDS = ("info", "bound", "bidprices", "simulate", "demo", "generate", "compare", "calibrate", "sweep")
+COMMANDS = ("info", "bound", "bidprices", "simulate", "demo", "generate", "sweep", "compare",
+            "calibrate")
 
 
 def build_parser() -> argparse.ArgumentParser:
