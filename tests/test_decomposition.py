@@ -33,7 +33,7 @@ from rmkit.decomposition import leg_tables, product_legs
 from rmkit.solvers.dpd import displaced_fares
 from tests.conftest import vendored
 from tests.instances import brute_force_values, random_problem, small_problem
-from tests.published import DLP_BOUND, LR_BOUND
+from tests.published import DLP_BOUND, LR_BOUND, POLICY_REVENUE
 
 
 # --------------------------------------------------------------------------- independent references
@@ -346,14 +346,15 @@ def test_warm_start_is_valid_and_independent_of_history():
 # --------------------------------------------------------------------------- published values
 VENDORED = sorted(n for n in LR_BOUND if vendored(n).exists())
 
-# rm_200_4_1.6_8.0: the fare split in proportion to the DLP duals (the start) already gives 29257,
-# and the default run 29238, i.e. 0.6% under the published 29413. These are valid bounds (every
-# split gives one; exact <= LR checked on small networks above, and the LR minimum against the
-# HiGHS LP reformulation), and the certified lower bound (29128 after 3000 iterations) shows the
-# minimum over splits lies there, so the published figure is above the minimum: only the side of
-# the check that reveals badly optimised multipliers (not above published + 0.5%) applies, and
-# the value must stay within 1% of it.
-BELOW_PUBLISHED = {"rm_200_4_1.6_8.0"}
+# The two alpha = 1.6 instances: the default run lands 0.5-0.65% under the published LR bound
+# (rm_200_4_1.6_4.0: 16513 vs 16600; rm_200_4_1.6_8.0: 29228 vs 29413; on 1.6_8.0 the DLP-dual
+# split we start from already gives 29257). Every fare split gives a valid bound (exact <= LR is
+# checked on small networks above, and the minimum against the HiGHS LP reformulation), and
+# 3000-iteration runs certify the minimum lies within 0.2% and 0.3% under our values (certified
+# lower bounds 16480 and 29128), so the published figures sit above the minimum over splits and no
+# well-optimised run can come within 0.5% under them. There, only the side of the check that
+# reveals badly optimised multipliers applies, with the value kept within 1% of the figure.
+BELOW_PUBLISHED = {"rm_200_4_1.6_4.0", "rm_200_4_1.6_8.0"}
 
 
 @pytest.mark.parametrize("name", VENDORED)
@@ -367,6 +368,9 @@ def test_lr_bound_matches_published_value(name):
     assert res.payload["lower_bound"] <= res.value
     # Topaloglu (2009), Table 1: the DLP bound of the same instance; LR must not exceed it.
     assert res.value <= DLP_BOUND[name] + 0.5
+    # Topaloglu (2009), Table 2: simulated revenues of the DLP and LR policies (100 paths, about
+    # 0.5% sampling noise). A valid bound exceeds any policy's expected revenue; 1% for the noise.
+    assert res.value >= 0.99 * max(POLICY_REVENUE[name].values()), (name, res.value)
 
 
 # --------------------------------------------------------------------------- DPD

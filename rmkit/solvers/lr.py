@@ -36,7 +36,7 @@ least the revenue of its policy, and the shares of a product add up to its fare)
 used are running mixes of the iterates' policies (restarted at iterations 1, 2, 4, 8, ...). The
 reported gap is ``(record - lower bound) / record``. The run stops when the gap is at most
 ``tol`` (status ``optimal``), when the record bound has improved by less than ``stall_tol``
-(relative) over the last 40 iterations (status ``optimal_inaccurate``; the message gives the
+(relative) over the last 100 iterations (status ``optimal_inaccurate``; the message gives the
 certified gap), or after ``max_iterations`` (status ``iteration_limit`` plus a warning). The
 bound is valid in every case, only less tight.
 
@@ -88,7 +88,7 @@ PATH_FACTOR = 10.0
 #: 2-core machine. (The setting is local to the calling thread and restored afterwards.)
 KERNEL_THREADS = 1
 #: Iterations over which the bound's improvement is measured for the ``stall_tol`` rule.
-STALL_WINDOW = 40
+STALL_WINDOW = 100
 
 
 def _step_factor_ok(v: object) -> bool:
@@ -295,8 +295,8 @@ class LagrangianRelaxation(Solver):
     )
     params = {
         "tol": Param(1e-3, "a number > 0 (relative gap at which to stop)", positive_float),
-        "max_iterations": Param(300, "a whole number >= 1", positive_int),
-        "stall_tol": Param(2e-5, "a number >= 0 (relative bound change at which to stop; 0: "
+        "max_iterations": Param(1000, "a whole number >= 1", positive_int),
+        "stall_tol": Param(1e-5, "a number >= 0 (relative bound change at which to stop; 0: "
                            "never)", _non_negative_float),
         "step_factor": Param(1.0, "a number in (0, 2) (Polyak step factor)", _step_factor_ok),
         "warm_start": Param(False, "True or False", _bool_ok),
