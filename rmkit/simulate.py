@@ -148,15 +148,18 @@ def _incidence_lists(network: Network) -> tuple[np.ndarray, np.ndarray]:
 
 
 def _groups(book: _Book, pending: np.ndarray) -> list[tuple[int, np.ndarray, np.ndarray]]:
-    """Pending paths grouped by (next period, seats left): one solve per distinct state."""
+    """Pending paths grouped by (next period, seats left): one solve per distinct state.
+
+    Groups come in lexicographic order of the state and list their paths in ascending order.
+    """
     keys = np.column_stack([book.next_period[pending], book.seats[pending]])
-    unique, inverse = np.unique(keys, axis=0, return_inverse=True)
-    inverse = inverse.ravel()
-    order = np.argsort(inverse, kind="stable")
-    bounds = np.searchsorted(inverse[order], np.arange(unique.shape[0] + 1))
+    order = np.lexsort(keys.T[::-1])  # integer sorts; much faster than np.unique(axis=0)
+    ordered = keys[order]
+    starts = np.flatnonzero(np.any(ordered[1:] != ordered[:-1], axis=1)) + 1
+    bounds = np.concatenate([[0], starts, [order.size]])
     return [
-        (int(unique[g, 0]), unique[g, 1:], pending[order[bounds[g] : bounds[g + 1]]])
-        for g in range(unique.shape[0])
+        (int(ordered[a, 0]), ordered[a, 1:], pending[order[a:b]])
+        for a, b in zip(bounds[:-1], bounds[1:], strict=True)
     ]
 
 

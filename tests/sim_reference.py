@@ -8,6 +8,8 @@ checked against code it shares nothing with.
 
 from __future__ import annotations
 
+from contextlib import contextmanager
+
 import numpy as np
 from scipy.optimize import linprog
 
@@ -204,3 +206,32 @@ def bernstein_halfwidth(values: np.ndarray, value_range: float, delta: float = 1
     log_term = np.log(4.0 / delta)
     return float(np.sqrt(2.0 * v.var(ddof=1) * log_term / n)
                  + 7.0 * value_range * log_term / (3.0 * (n - 1)))
+
+
+@contextmanager
+def interpreted_kernels():
+    """Run the simulator kernels as plain Python: every compiled function of the kernel module is
+    swapped for its ``py_func`` (so the loop's calls to its helpers are interpreted too)."""
+    import rmkit._sim_kernels as kernels
+
+    compiled = {k: v for k, v in vars(kernels).items() if hasattr(v, "py_func")}
+    try:
+        for name, fn in compiled.items():
+            setattr(kernels, name, fn.py_func)
+        yield kernels.run_requests
+    finally:
+        for name, fn in compiled.items():
+            setattr(kernels, name, fn)
+
+
+def kernel_both_ways(args_before_book: tuple, make_book) -> tuple[list, list]:
+    """Books after :func:`rmkit._sim_kernels.run_requests` ran compiled and interpreted on the
+    same inputs (``make_book()`` gives fresh seats, revenue, accepted, rejected, sold, next)."""
+    from rmkit._sim_kernels import run_requests
+
+    compiled = make_book()
+    run_requests(*args_before_book, *compiled)
+    plain = make_book()
+    with interpreted_kernels() as run_plain:
+        run_plain(*args_before_book, *plain)
+    return compiled, plain

@@ -17,7 +17,7 @@ import xarray as xr
 from scipy.stats import binom, poisson
 
 from rmkit import DemandModel, InputError, Network, SolverError, SolveResult, load_all, load_scenario
-from rmkit._sim_kernels import CONTROL_CODES, run_requests
+from rmkit._sim_kernels import CONTROL_CODES
 from rmkit.cli import main
 from rmkit.policies import FixedPolicy, make_policy
 from rmkit.simulate import compare_policies, replay, resolve_periods, simulate, summarize
@@ -29,6 +29,7 @@ from tests.sim_reference import (
     LinprogNestedLimits,
     RecordingPolicy,
     brute_force_decisions,
+    kernel_both_ways,
     linprog_dlp,
     one_leg_table,
     reference_replay,
@@ -155,17 +156,18 @@ def _kernel_inputs(seed: int):
 @pytest.mark.parametrize("stop_after_sale", [False, True])
 def test_kernel_matches_its_py_func(control, stop_after_sale):
     net, streams, leg_ptr, leg_list, arrays = _kernel_inputs(11)
-    outs = []
-    for fn in (run_requests, run_requests.py_func):
-        p, m, n = streams.shape[0], net.n_legs, net.n_products
-        book = [np.tile(net.capacities, (p, 1)).astype(np.int64), np.zeros(p),
+    p, m, n = streams.shape[0], net.n_legs, net.n_products
+
+    def book():
+        return [np.tile(net.capacities, (p, 1)).astype(np.int64), np.zeros(p),
                 np.zeros((p, n), np.int64), np.zeros((p, n), np.int64),
                 np.zeros((p, m, 3), np.int64), np.full(p, 1, np.int64)]
-        paths = np.array([0, 2, 3, 5], dtype=np.int64)
-        fn(streams, paths, 7, stop_after_sale, CONTROL_CODES[control], net.fares, leg_ptr,
-           leg_list, arrays["t0"], arrays["bid"], arrays["table"], arrays["limit"],
-           arrays["bucket"], arrays["bits"], arrays["strides"], *book)
-        outs.append(book)
+
+    paths = np.array([0, 2, 3, 5], dtype=np.int64)
+    outs = kernel_both_ways(
+        (streams, paths, 7, stop_after_sale, CONTROL_CODES[control], net.fares, leg_ptr, leg_list,
+         arrays["t0"], arrays["bid"], arrays["table"], arrays["limit"], arrays["bucket"],
+         arrays["bits"], arrays["strides"]), book)
     for a, b in zip(*outs, strict=True):
         np.testing.assert_array_equal(a, b)
     assert outs[0][5][[1, 4]].tolist() == [1, 1]  # paths not asked about are untouched

@@ -7,11 +7,16 @@ from hypothesis import given
 from hypothesis import strategies as st
 
 from rmkit import SolveResult
-from rmkit._sim_kernels import CONTROL_CODES, run_requests
+from rmkit._sim_kernels import CONTROL_CODES
 from rmkit.policies import FixedPolicy, make_policy
 from rmkit.simulate import replay, simulate
 from tests.properties.test_dp_properties import small_networks  # the shared random problems
-from tests.sim_reference import bernstein_halfwidth, brute_force_decisions, reference_replay
+from tests.sim_reference import (
+    bernstein_halfwidth,
+    brute_force_decisions,
+    kernel_both_ways,
+    reference_replay,
+)
 
 
 @st.composite
@@ -118,7 +123,7 @@ def test_no_policy_beats_the_optimum(problem, seed):
 
 
 @given(controlled_problems(), st.integers(0, 1000), st.booleans())
-def test_kernel_equals_its_py_func(case, seed, stop_after_sale):
+def test_kernel_equals_its_interpreted_self(case, seed, stop_after_sale):
     net, dem, policy, control = case
     source = make_policy(policy)
     from rmkit.policies import control_arrays
@@ -128,16 +133,17 @@ def test_kernel_equals_its_py_func(case, seed, stop_after_sale):
                             net.capacities)
     streams = dem.sample_streams(5, seed)
     leg_ptr, leg_list = _incidence_lists(net)
-    books = []
-    for fn in (run_requests, run_requests.py_func):
-        p = streams.shape[0]
-        book = [np.tile(net.capacities, (p, 1)).astype(np.int64), np.zeros(p),
+    p = streams.shape[0]
+
+    def book():
+        return [np.tile(net.capacities, (p, 1)).astype(np.int64), np.zeros(p),
                 np.zeros((p, net.n_products), np.int64), np.zeros((p, net.n_products), np.int64),
                 np.zeros((p, net.n_legs, max(arrays.n_buckets, 1)), np.int64),
                 np.zeros(p, np.int64)]
-        fn(streams, np.arange(p, dtype=np.int64), dem.n_periods, stop_after_sale,
-           CONTROL_CODES[control], net.fares, leg_ptr, leg_list, arrays.t0, arrays.bid,
-           arrays.table, arrays.limit, arrays.bucket, arrays.bits, arrays.strides, *book)
-        books.append(book)
+
+    books = kernel_both_ways(
+        (streams, np.arange(p, dtype=np.int64), dem.n_periods, stop_after_sale,
+         CONTROL_CODES[control], net.fares, leg_ptr, leg_list, arrays.t0, arrays.bid, arrays.table,
+         arrays.limit, arrays.bucket, arrays.bits, arrays.strides), book)
     for a, b in zip(*books, strict=True):
         np.testing.assert_array_equal(a, b)

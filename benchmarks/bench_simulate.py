@@ -1,0 +1,150 @@
+"""Benchmark: the simulator's replay kernel against a plain Python loop, and the LR protocol.
+
+Run by hand (not a test): ``python benchmarks/bench_simulate.py [--shared DIR] [--skip-lr]``.
+
+1. Static bid-price control on rm_600_8_1.6_8.0 (16 legs, 144 products, 600 periods): the DLP
+   bid prices at the start, applied to every path. Requests per second of the numba kernel
+   (through :func:`rmkit.simulate.replay`, compile excluded) and of a plain Python loop of the same
+   control over the same streams (lists and dicts, one request at a time); both must give the same
+   revenues on the paths they share. The ratio is the figure to read.
+2. The exact policy on the bundled example (4 legs, 12 products, 300 periods, 211,575 states):
+   the same comparison with the DP's stored decisions.
+3. The published protocol of Topaloglu (2009) with the LR policy on rm_600_8_1.6_8.0: bid prices
+   recomputed at 5 equally spaced periods, 100 paths; wall time, solves and time in solves.
+
+Goal (issue 7): at least 100x the plain Python loop; the LR protocol in under a minute. The
+machine is shared and noisy: read the ratios, measured in one run, before the absolute times.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+import time
+import warnings
+from pathlib import Path
+
+import numpy as np
+
+ROOT = Path(__file__).resolve().parents[1]
+if str(ROOT) not in sys.path:  # run as a script from anywhere: use this checkout's rmkit
+    sys.path.insert(0, str(ROOT))
+
+DEFAULT_SHARED = Path(__file__).resolve().parents[2] / "shared" / "benchmarks" / "hub-spoke"
+INSTANCE = "rm_600_8_1.6_8.0"
+
+
+def python_loop(network, streams, accept) -> np.ndarray:
+    """Per-path revenue of a control replayed one request at a time in plain Python."""
+    legs_of = [list(np.flatnonzero(network.incidence[:, j])) for j in range(network.n_products)]
+    fares = [float(f) for f in network.fares]
+    caps = [int(c) for c in network.capacities]
+    out = np.zeros(streams.shape[0])
+    for k, row in enumerate(streams.tolist()):
+        x = list(caps)
+        revenue = 0.0
+        for t, j in enumerate(row):
+            if j < 0:
+                continue
+            legs = legs_of[j]
+            if all(x[i] > 0 for i in legs) and accept(t, j, x, legs, fares[j]):
+                for i in legs:
+                    x[i] -= 1
+                revenue += fares[j]
+        out[k] = revenue
+    return out
+
+
+def static_bid_accept(bid: np.ndarray):
+    prices = [float(b) for b in bid]
+
+    def accept(t, j, x, legs, fare):
+        return fare >= sum(prices[i] for i in legs) - 1e-9 * fare
+
+    return accept
+
+
+def exact_accept(bits: np.ndarray, strides: np.ndarray):
+    s = [int(v) for v in strides]
+
+    def accept(t, j, x, legs, fare):
+        state = sum(xi * si for xi, si in zip(x, s, strict=True))
+        return bool((int(bits[t, state, j >> 3]) >> (j & 7)) & 1)
+
+    return accept
+
+
+def compare_rates(label, network, demand, result, accept, kernel_paths, python_paths, seed):
+    from rmkit.policies import FixedPolicy
+    from rmkit.simulate import replay
+
+    policy = FixedPolicy(result)
+    streams = demand.sample_streams(kernel_paths, seed)
+    replay(network, demand, policy, streams[:2], seed=seed)  # compile / load the cache
+    t0 = time.perf_counter()
+    fast = replay(network, demand, policy, streams, seed=seed)
+    kernel_s = time.perf_counter() - t0
+    t0 = time.perf_counter()
+    slow = python_loop(network, streams[:python_paths], accept)
+    python_s = time.perf_counter() - t0
+    assert np.allclose(slow, fast.revenue[:python_paths]), "kernel and Python loop disagree"
+    kernel_rate = int((streams >= 0).sum()) / kernel_s
+    python_rate = int((streams[:python_paths] >= 0).sum()) / python_s
+    print(f"{label}: kernel {kernel_rate:,.0f} requests/s ({kernel_paths} paths, {kernel_s:.3f} s); "
+          f"Python loop {python_rate:,.0f} requests/s ({python_paths} paths, {python_s:.2f} s); "
+          f"ratio {kernel_rate / python_rate:,.0f}x")
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--shared", type=Path, default=DEFAULT_SHARED)
+    parser.add_argument("--skip-lr", action="store_true", help="skip the LR protocol run")
+    parser.add_argument("--only-lr", action="store_true", help="run the LR protocol alone")
+    args = parser.parse_args()
+
+    from rmkit import load_scenario
+
+    hub = load_scenario(args.shared / f"{INSTANCE}.txt.gz")
+    net, dem = hub.network, hub.demand
+    if not args.only_lr:
+        kernel_rates(net, dem)
+    if not args.skip_lr:
+        lr_protocol(net, dem)
+
+
+def kernel_rates(net, dem) -> None:
+    from rmkit import get_solver, load_scenario
+    from rmkit.simulate import simulate
+
+    dlp = get_solver("dlp").solve(net, dem)
+    compare_rates(f"static bid prices ({INSTANCE})", net, dem, dlp,
+                  static_bid_accept(dlp["bid_price"]), 20_000, 300, seed=1)
+
+    example = load_scenario(ROOT / "rmkit" / "examples" / "tallowmere.toml")
+    t0 = time.perf_counter()
+    exact = get_solver("exact").solve(example.network, example.demand)
+    print(f"exact DP of the example: {time.perf_counter() - t0:.1f} s, value {exact.value:,.2f}")
+    compare_rates("exact policy (tallowmere example)", example.network, example.demand, exact,
+                  exact_accept(exact.payload["decision_bits"], exact.payload["state_strides"]),
+                  100_000, 2_000, seed=2)
+    check = simulate(example.network, example.demand, exact, paths=20_000, seed=3)
+    print(f"  exact policy mean {float(check.revenue_mean):,.2f} +- "
+          f"{float(check.revenue_stderr):.2f} (DP value {exact.value:,.2f})")
+
+
+def lr_protocol(net, dem) -> None:
+    from rmkit.simulate import simulate
+
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        t0 = time.perf_counter()
+        ds = simulate(net, dem, "lr", paths=100, seed=2009, resolve=5)
+        wall = time.perf_counter() - t0
+    print(f"LR protocol ({INSTANCE}, --resolve 5, 100 paths): {wall:.1f} s wall, "
+          f"{ds.attrs['solves']} solves, {ds.attrs['solve_seconds']:.1f} s in solves; mean "
+          f"{float(ds.revenue_mean):,.0f} +- {float(ds.revenue_stderr):,.0f}; solve statuses "
+          f"{ds.attrs['solve_statuses']}; {len(caught)} warnings")
+
+
+if __name__ == "__main__":
+    main()
