@@ -185,17 +185,23 @@ def replay(
     book = _Book.start(network, n_paths)
     solves, solve_seconds = 0, 0.0
     statuses: dict[str, int] = {}
+    # control arrays by state; kept across rounds only with every-sale re-solves, where paths
+    # reach the same (period, seats left) in different rounds and small controls repeat
+    solved: dict[tuple[int, bytes], Any] = {}
     pending = np.arange(n_paths, dtype=np.int64)
     while pending.size:
         for period, seats, idx in _groups(book, pending):
-            t_solve = time.perf_counter()
-            result = source.control_at(network, demand, period, seats, solve_seed(seed, period,
-                                                                                  seats))
-            arrays = control_arrays(source.control, result, network, seats)
-            solve_seconds += time.perf_counter() - t_solve
-            if result is not None:
-                solves += 1
-                statuses[result.status] = statuses.get(result.status, 0) + 1
+            key = (period, seats.tobytes())
+            if key not in solved:
+                t_solve = time.perf_counter()
+                result = source.control_at(network, demand, period, seats,
+                                           solve_seed(seed, period, seats))
+                solved[key] = control_arrays(source.control, result, network, seats)
+                solve_seconds += time.perf_counter() - t_solve
+                if result is not None:
+                    solves += 1
+                    statuses[result.status] = statuses.get(result.status, 0) + 1
+            arrays = solved[key] if every_sale else solved.pop(key)
             if arrays.n_buckets:
                 book.room_for_buckets(arrays.n_buckets)
                 book.sold[idx] = 0  # limits count the sales made since they were set

@@ -10,6 +10,7 @@ from rmkit.commands._common import (
     add_params,
     add_scenario,
     emit_json,
+    fmt,
     load,
     parse_params,
     print_table,
@@ -85,12 +86,11 @@ def run(args: argparse.Namespace) -> int:
         emit_json(out)
         return 0
     print_table(
-        f"{scenario.name}: simulated revenue of {out['policy']} ({out['paths']} paths, seed "
-        f"{out['seed']})",
-        ["policy", "mean", "std. error", "95% CI low", "95% CI high", "resolves", "solves",
-         "seconds"],
-        [[out["policy"], out["mean"], out["stderr"], out["ci_low"], out["ci_high"],
-          out["resolves"], out["solves"], out["seconds"]]],
+        f"{scenario.name}: simulated revenue ({out['paths']} paths, seed {out['seed']})",
+        ["policy", "mean", "std. error", "95% CI", "resolves"],
+        [[out["policy"], out["mean"], out["stderr"],
+          f"{fmt(out['ci_low'])} to {fmt(out['ci_high'])}", out["resolves"]]],
+        note=f"{out['solves']} solves; {out['seconds']:.2f} s",
     )
     print_table(
         "final load factor (mean over paths)",
