@@ -18,8 +18,9 @@ and for every split ``V_t(x) <= sum_i v_i(t, x_i)`` (induction on t: accepting j
 is feasible on each leg it uses, and a joint maximum is at most the sum of the legs' maxima).
 The bound ``L(lambda) = sum_i v_i(t0, x_i)`` is convex and piecewise linear in lambda; its
 subgradient is ``q[i, t, j]``, the probability that leg i, following its own optimal policy
-from ``x_i`` seats, sells product j in period t. Minimising over ``lambda >= 0`` loses nothing
-(a negative share is never accepted, and moving it to the other legs cannot raise their value).
+from ``x_i`` seats, sells product j in period t. Minimising over ``lambda >= 0`` loses nothing:
+a leg never accepts a share ``<= 0``, so raising a negative share to 0 leaves its leg's value
+unchanged, and the matching cut in the other legs' shares cannot raise theirs.
 
 The minimisation
 ----------------
@@ -28,7 +29,8 @@ variables), with Polyak's step towards a target level chosen by the path-based r
 and Kiwiel (1999), "Convergence of a simple subgradient level method", *Mathematical Programming*
 85:207-211, which guarantees ``inf_k L(lambda_k) = min L``: the target is the record value less
 ``delta``; ``delta`` is kept after a sufficient descent and halved when the path since the last
-reset exceeds a bound. The target is never set below the certified lower bound below.
+reset exceeds a bound. The target is never set below the certified lower bound below (such a
+target is under the minimum anyway, and halving delta lifts it above that bound in time).
 
 A lower bound on ``min L`` certifies progress: for any leg policies with sales probabilities
 ``q``, ``sum_{t, j} f_j min_{i in j} q[i, t, j] <= min L`` (each leg's value at any split is at
