@@ -53,7 +53,14 @@ from rmkit._version import __version__
 from rmkit.demand import DemandModel, check_compatible
 from rmkit.errors import InputError, ProblemTooLargeError
 from rmkit.network import Network
-from rmkit.policies import SALE_SENSITIVE_CONTROLS, PolicySource, control_arrays, make_policy
+from rmkit.policies import (
+    ADAPTIVE_CONTROLS,
+    SALE_SENSITIVE_CONTROLS,
+    FixedPolicy,
+    PolicySource,
+    control_arrays,
+    make_policy,
+)
 
 CONFIDENCE = 0.95
 #: Refuse runs whose per-path arrays would need more memory than this (bytes).
@@ -180,8 +187,16 @@ def replay(
     n_paths, n_periods = streams.shape
     fares = np.ascontiguousarray(network.fares, dtype=np.float64)
     leg_ptr, leg_list = _incidence_lists(network)
+    wants_resolves = (resolve > 1 and source.control in ADAPTIVE_CONTROLS) or (
+        resolve_every_sale and source.control in SALE_SENSITIVE_CONTROLS)
+    if isinstance(source, FixedPolicy) and wants_resolves:
+        raise InputError(
+            f"resolve: policy {source.label!r} is a fixed result and cannot be re-solved; pass "
+            "the method (its name or a Solver) to re-solve it, or drop the re-solves"
+        )
     points = resolve_periods(n_periods, resolve) if source.adaptive else np.zeros(1, np.int64)
-    every_sale = bool(resolve_every_sale) and source.control in SALE_SENSITIVE_CONTROLS
+    every_sale = (bool(resolve_every_sale) and source.adaptive
+                  and source.control in SALE_SENSITIVE_CONTROLS)
     book = _Book.start(network, n_paths)
     solves, solve_seconds = 0, 0.0
     statuses: dict[str, int] = {}
@@ -344,7 +359,7 @@ def simulate(
     policy
         A method name (``"fcfs"`` or any registered method with a control), a
         :class:`~rmkit.solver.Solver`, a :class:`~rmkit.results.SolveResult` solved from period 0
-        (applied as is, never re-solved) or a :mod:`rmkit.policies` source.
+        (applied as is: asking to re-solve it is an error) or a :mod:`rmkit.policies` source.
     paths, seed
         Number of sample paths and the seed of their request streams.
     resolve

@@ -16,11 +16,12 @@ import pytest
 import xarray as xr
 from scipy.stats import binom, poisson
 
-from rmkit import DemandModel, InputError, Network, SolverError, SolveResult, load_all, load_scenario
+from rmkit import DemandModel, InputError, Network, SolverError, SolveResult, Tags, load_all, load_scenario
 from rmkit._sim_kernels import CONTROL_CODES
 from rmkit.cli import main
 from rmkit.policies import FixedPolicy, make_policy
 from rmkit.simulate import compare_policies, replay, resolve_periods, simulate, summarize
+from rmkit.solver import SolveOutput
 from tests.conftest import instance_path
 from tests.instances import brute_force_values, random_problem, small_problem
 from tests.published import POLICY_REVENUE
@@ -229,14 +230,30 @@ def test_resolve_schedule():
     assert resolve_periods(10, 3).tolist() == [0, 3, 6]
 
 
-def test_every_sale_is_a_no_op_for_tables_and_fcfs():
+def test_every_sale_is_a_no_op_for_tables_exact_and_fcfs():
     net, dem = random_problem(3, n_legs=1, max_capacity=4, n_products=3, n_periods=10)
-    table = one_leg_table(net, dem)
-    for policy in (table, "fcfs"):
+
+    class TablePolicy(LinprogBidPrices):  # the one-leg DP table, solved from period 0 only
+        tags = Tags(exact=True, control="table")
+
+        def _solve(self, problem, params, seed):
+            return SolveOutput(dict(one_leg_table(net, dem).variables))
+
+    _, exact = brute_force_decisions(net, dem)
+    for policy in (TablePolicy(), "fcfs", FixedPolicy(exact)):
         a = simulate(net, dem, policy, paths=50, seed=2)
         b = simulate(net, dem, policy, paths=50, seed=2, resolve_every_sale=True)
         np.testing.assert_array_equal(a.revenue, b.revenue)
         assert b.attrs["resolve_every_sale"] == 0
+
+
+def test_a_fixed_result_is_not_silently_re_solved():
+    net, dem = small_problem()
+    res = _fixed(net, dem.n_periods, bid_price=np.zeros(net.n_legs))
+    with pytest.raises(InputError, match="cannot be re-solved"):
+        simulate(net, dem, res, paths=5, seed=0, resolve=3)
+    with pytest.raises(InputError, match="cannot be re-solved"):
+        simulate(net, dem, res, paths=5, seed=0, resolve_every_sale=True)
 
 
 # ---------------------------------------------------------------- against the optimum
