@@ -295,6 +295,12 @@ def test_other_policies_stay_below_the_optimum():
     assert np.all(d.values <= 3 * cmp.difference_stderr.sel(versus="exact").values)
     assert float(cmp.gap.sel(policy="exact")) == pytest.approx(
         optimum - float(cmp.revenue_mean.sel(policy="exact")))
+    if "exact" in REGISTRY:  # the bound by method name: the registered DP's optimum
+        by_name = compare_policies(net, dem, ["fcfs", "exact"], paths=2000, seed=9, bound="exact")
+        assert float(by_name.bound) == pytest.approx(optimum, rel=1e-9)
+        assert by_name.bound.attrs["source"] == "exact"
+        gap = by_name.sel(policy="exact")
+        assert float(gap.gap_ci_low) <= 0 <= float(gap.gap_ci_high)
 
 
 def test_one_leg_table_of_the_dp_is_optimal():
@@ -559,7 +565,8 @@ def test_published_policy_revenue(instance, method):
         pytest.skip(f"LR re-solves take seconds each (hundreds per instance); set "
                     f"{LR_PROTOCOL_ENV}=1 to run the published LR protocol")
     scenario = load_scenario(instance_path(instance))
-    ds = simulate(scenario.network, scenario.demand, method, paths=200, seed=2009, resolve=5)
+    paths = 100 if method == "lr" else 200  # LR: the published protocol's 100 paths (slow solves)
+    ds = simulate(scenario.network, scenario.demand, method, paths=paths, seed=2009, resolve=5)
     published = POLICY_REVENUE[instance][method]
     assert abs(float(ds.revenue_mean) - published) <= _published_tolerance(ds), (
         float(ds.revenue_mean), float(ds.revenue_stderr), published)
