@@ -410,7 +410,10 @@ def _bound_value(bound: Any, network: Network, demand: DemandModel, seed: int
     if isinstance(bound, SolveResult):
         se = bound.stderr
         return bound.value, 0.0 if se is None else float(se), bound.method
-    value = float(bound)
+    try:
+        value = float(bound)
+    except (TypeError, ValueError):
+        value = math.nan
     if not math.isfinite(value):
         raise InputError(f"bound: must be a finite number, a method name or a result, got {bound!r}")
     return value, 0.0, "given"

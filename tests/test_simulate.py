@@ -447,6 +447,10 @@ def test_bad_input_is_refused_with_the_field_named():
         simulate(net, dem, res, paths=5, seed=0)
     with pytest.raises(InputError, match="two or more"):
         compare_policies(net, dem, ["fcfs"], paths=5, seed=0)
+    with pytest.raises(InputError, match="bound"):
+        compare_policies(net, dem, ["fcfs", LinprogBidPrices()], paths=5, seed=0, bound=[1, 2])
+    with pytest.raises(InputError, match="unique"):
+        compare_policies(net, dem, ["fcfs", "fcfs"], paths=5, seed=0)
     with pytest.raises(InputError, match="ProblemTooLarge|GiB"):
         simulate(net, dem, "fcfs", paths=10**6, seed=0, max_bytes=2**20)
 
