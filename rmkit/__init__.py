@@ -12,6 +12,25 @@ from rmkit.results import SCHEMA, STATUSES, BookingState, SolveResult
 from rmkit.scenario import Scenario, load_scenario, save_scenario, scenario_from_model
 from rmkit.solver import REGISTRY, Solver, Tags, get_solver, load_all, register
 
+#: Workflow functions, imported on first use so that ``import rmkit`` (and ``rmkit info``) stays
+#: quick: name -> module.
+_LAZY = {
+    "simulate": "rmkit.simulate",
+    "compare_policies": "rmkit.simulate",
+    "compare": "rmkit.compare",
+    "calibrate": "rmkit.calibrate",
+    "open_sweep": "rmkit.sweep",
+}
+
+
+def __getattr__(name: str):
+    if name in _LAZY:
+        import importlib
+
+        return getattr(importlib.import_module(_LAZY[name]), name)
+    raise AttributeError(f"module 'rmkit' has no attribute {name!r}")
+
+
 __all__ = [
     "REGISTRY",
     "SCHEMA",
@@ -29,11 +48,16 @@ __all__ = [
     "SolverError",
     "Tags",
     "__version__",
+    "calibrate",
+    "compare",
+    "compare_policies",
     "get_solver",
     "load_all",
     "load_factor",
     "load_scenario",
+    "open_sweep",
     "register",
     "save_scenario",
     "scenario_from_model",
+    "simulate",
 ]
