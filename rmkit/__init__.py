@@ -13,12 +13,11 @@ from rmkit.scenario import Scenario, load_scenario, save_scenario, scenario_from
 from rmkit.solver import REGISTRY, Solver, Tags, get_solver, load_all, register
 
 #: Workflow functions, imported on first use so that ``import rmkit`` (and ``rmkit info``) stays
-#: quick: name -> module.
+#: quick: name -> module. Functions named like their module (``rmkit.simulate.simulate``,
+#: ``rmkit.compare.compare``, ``rmkit.calibrate.calibrate``) are imported from that module: a
+#: package attribute of the same name would be replaced by the module on its first import.
 _LAZY = {
-    "simulate": "rmkit.simulate",
     "compare_policies": "rmkit.simulate",
-    "compare": "rmkit.compare",
-    "calibrate": "rmkit.calibrate",
     "open_sweep": "rmkit.sweep",
 }
 
@@ -48,8 +47,6 @@ __all__ = [
     "SolverError",
     "Tags",
     "__version__",
-    "calibrate",
-    "compare",
     "compare_policies",
     "get_solver",
     "load_all",
@@ -59,5 +56,4 @@ __all__ = [
     "register",
     "save_scenario",
     "scenario_from_model",
-    "simulate",
 ]
