@@ -104,6 +104,8 @@ class Solver:
     tags: ClassVar[Tags] = Tags()
     citation: ClassVar[str] = ""
     params: ClassVar[Mapping[str, Param]] = {}
+    #: Error raised when :meth:`accepts` refuses a problem (a size refusal sets ProblemTooLargeError).
+    refusal: ClassVar[type[InputError]] = InputError
 
     def __init__(self, **settings: Any) -> None:
         unknown = sorted(set(settings) - set(self.params))
@@ -150,7 +152,7 @@ class Solver:
         period, capacity = (state or BookingState()).resolve(network, demand.n_periods)
         reason = self.accepts(network, demand)
         if reason is not None:
-            raise InputError(f"{self.name}: cannot run on this problem: {reason}")
+            raise self.refusal(f"{self.name}: cannot run on this problem: {reason}")
         if seed is None and self.tags.stochastic:
             seed = 0
         problem = Problem(network, demand, period, capacity)

@@ -38,11 +38,10 @@ from typing import Any
 
 import numpy as np
 
-from rmkit.demand import DemandModel, check_compatible
+from rmkit.demand import DemandModel
 from rmkit.errors import ProblemTooLargeError
 from rmkit.exact_dp import DEFAULT_MAX_MEMORY_GB, flat_index, solve_network_dp, too_large_reason
 from rmkit.network import Network
-from rmkit.results import BookingState, SolveResult
 from rmkit.solver import Param, Problem, SolveOutput, Solver, Tags, positive_float, register
 
 
@@ -60,6 +59,7 @@ class ExactDP(Solver):
         "K. T. Talluri and G. J. van Ryzin (2004), The Theory and Practice of Revenue "
         "Management, Springer, sec. 3.1 (the network dynamic program)"
     )
+    refusal = ProblemTooLargeError
     params = {
         "max_memory_gb": Param(DEFAULT_MAX_MEMORY_GB, "a number of GiB > 0", positive_float),
         "keep_decisions": Param(True, "True or False", _is_bool),
@@ -70,21 +70,6 @@ class ExactDP(Solver):
         return too_large_reason(
             network, demand.n_periods, float(params["max_memory_gb"]), params["keep_decisions"]
         )
-
-    def solve(
-        self,
-        network: Network,
-        demand: DemandModel,
-        *,
-        state: BookingState | None = None,
-        seed: int | None = None,
-    ) -> SolveResult:
-        """As :meth:`Solver.solve`; too large a problem raises :class:`ProblemTooLargeError`."""
-        check_compatible(network, demand)
-        reason = self.accepts(network, demand)
-        if reason is not None:
-            raise ProblemTooLargeError(f"{self.name}: {reason}")
-        return super().solve(network, demand, state=state, seed=seed)
 
     def _solve(self, problem: Problem, params: dict[str, Any], seed: int | None) -> SolveOutput:
         dp = solve_network_dp(
