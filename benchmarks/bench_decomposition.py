@@ -23,7 +23,7 @@ from pathlib import Path
 import numpy as np
 
 from rmkit import BookingState, get_solver
-from rmkit.benchmark_io import read_hub_spoke
+from rmkit.model.hub_spoke import read_hub_spoke
 
 HUB_SPOKE = Path(__file__).resolve().parents[2] / "shared" / "benchmarks" / "hub-spoke"
 INSTANCES = ("rm_200_4_1.0_4.0", "rm_600_8_1.6_8.0")
@@ -45,9 +45,9 @@ def lr(net, dem, state=None, **settings):
 def leg_pass_seconds(net, dem, repeats: int = 20, threads: int = 1) -> float:
     import numba
 
-    from rmkit._decomposition_kernels import leg_acceptance_batch
-    from rmkit._single_leg_kernels import leg_values_batch
-    from rmkit.solvers.lr import dual_split
+    from rmkit.kernels.decomposition import leg_acceptance_batch
+    from rmkit.kernels.single_leg import leg_values_batch
+    from rmkit.methods.lr import dual_split
 
     prob = np.ascontiguousarray(dem.probabilities)
     lam = dual_split(net, np.zeros(net.n_legs), dem.n_periods)

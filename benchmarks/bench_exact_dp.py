@@ -14,9 +14,9 @@ noisy; the minimum is the least disturbed run), updates per second = states x pr
   period, one array-slice update per product, values only), and ``numpy+dec`` which also keeps the
   decision of every product, period and state as a bool array (what the DP must hand the
   simulator).
-* ``rmkit``: the kernel (:mod:`rmkit._dp_kernels`) called on prepared arrays, on one thread and
+* ``rmkit``: the kernel (:mod:`rmkit.kernels.network_dp`) called on prepared arrays, on one thread and
   as the two-thread pipeline, values only and with the packed decisions; ``rmkit solve`` the whole
-  :func:`rmkit.exact_dp.solve_network_dp` call (layout, allocation, kernel, packing).
+  :func:`rmkit.methods.shared.network_dp.solve_network_dp` call (layout, allocation, kernel, packing).
 * ``quantecon`` (optional): quantecon.markov.backward_induction on the state-action-pair model
   (every subset of products as an action) on (a) and (c); skipped on (b), where the model would
   need several GB.
@@ -183,7 +183,7 @@ def probe_rate(n_threads: int, repeats: int) -> float:
 # ------------------------------------------------------------------ first and second run
 def first_call_seconds() -> None:
     """In a child process: time the first solve of case (a) (numba cache set by the parent)."""
-    from rmkit.exact_dp import solve_network_dp
+    from rmkit.methods.shared.network_dp import solve_network_dp
 
     net, dem = case_problem("a")
     t = time.perf_counter()
@@ -219,7 +219,7 @@ def main() -> None:
 
     import numba
 
-    from rmkit.exact_dp import prepare, solve_network_dp
+    from rmkit.methods.shared.network_dp import prepare, solve_network_dp
 
     print(f"numba {numba.__version__}, numpy {np.__version__}, threads "
           f"{numba.get_num_threads()}, load average at start {os.getloadavg()[0]:.2f}")

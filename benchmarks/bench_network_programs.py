@@ -6,7 +6,7 @@ Run by hand (not a test): ``python benchmarks/bench_network_programs.py [--share
    stream is booked with DLP bid prices re-solved in every period, so each re-solve sees the
    capacity and demand to come of the next state. At each state, in alternation (so machine noise
    hits all alike): scipy.optimize.linprog(method="highs") solved cold, a fresh highspy model
-   solved cold, and the warm :class:`rmkit.lp_model.NetworkLP` re-solve. Reported: median
+   solved cold, and the warm :class:`rmkit.methods.shared.network_lp.NetworkLP` re-solve. Reported: median
    microseconds per solve, the cold/warm ratios, and the median simplex iterations of the warm
    re-solves. The same again for random capacity changes (not a path).
 2. The ``ph`` bound with K = 1000 samples on rm_600_8_1.6_8.0: the one-off load of the sampling
@@ -47,7 +47,7 @@ def _scipy_cold(net, x, d) -> float:
 
 def booking_path_states(net, dem, seed: int) -> list[tuple[int, np.ndarray]]:
     """States (period, seats left) met by one request stream under re-solved DLP bid prices."""
-    from rmkit.lp_model import NetworkLP
+    from rmkit.methods.shared.network_lp import NetworkLP
 
     model = NetworkLP(net)
     stream = dem.sample_streams(1, seed)[0]
@@ -67,7 +67,7 @@ def booking_path_states(net, dem, seed: int) -> list[tuple[int, np.ndarray]]:
 
 def time_resolves(net, dem, states, passes: int) -> dict[str, float]:
     """Medians over ``passes`` walks through ``states``, each with a new warm model."""
-    from rmkit.lp_model import NetworkLP
+    from rmkit.methods.shared.network_lp import NetworkLP
 
     t_scipy, t_fresh, t_warm, iters = [], [], [], []
     for _ in range(passes):
@@ -87,7 +87,7 @@ def time_resolves(net, dem, states, passes: int) -> dict[str, float]:
 
 
 def _walk(net, dem, states, warm_model, t_scipy, t_fresh, t_warm, iters) -> None:
-    from rmkit.lp_model import NetworkLP
+    from rmkit.methods.shared.network_lp import NetworkLP
 
     for state in states:
         x, d = _state_bounds(dem, state)
@@ -154,7 +154,7 @@ def main() -> None:
     parser.add_argument("--passes", type=int, default=3, help="walks through each state list")
     args = parser.parse_args()
 
-    from rmkit.benchmark_io import read_hub_spoke
+    from rmkit.model.hub_spoke import read_hub_spoke
 
     t_import = time.perf_counter()
     ph_scen = read_hub_spoke(args.shared / f"{PH_INSTANCE}.txt.gz")

@@ -5,7 +5,7 @@ Run by hand (not a test): ``python benchmarks/bench_simulate.py [--shared DIR] [
 
 1. Static bid-price control on rm_600_8_1.6_8.0 (16 legs, 144 products, 600 periods): the DLP
    bid prices at the start, applied to every path. Requests per second of the numba kernel
-   (through :func:`rmkit.simulate.replay`, compile excluded) against two plain Python loops of the
+   (through :func:`rmkit.workflows.simulate.replay`, compile excluded) against two plain Python loops of the
    same control over the same streams: a lean one written for Python (lists, one request at a
    time) and the kernel's own code run by the interpreter (``py_func``). All must give the same
    revenues on the paths they share. The ratios are the figures to read.
@@ -77,10 +77,10 @@ def exact_accept(bits: np.ndarray, strides: np.ndarray):
 
 
 def interpreted_replay(network, demand, policy, streams, seed):
-    """:func:`rmkit.simulate.replay` with every kernel function swapped for its ``py_func``: the
+    """:func:`rmkit.workflows.simulate.replay` with every kernel function swapped for its ``py_func``: the
     same control code, run by the Python interpreter."""
-    import rmkit._sim_kernels as kernels
-    from rmkit.simulate import replay
+    import rmkit.kernels.replay as kernels
+    from rmkit.workflows.simulate import replay
 
     compiled = {k: v for k, v in vars(kernels).items() if hasattr(v, "py_func")}
     try:
@@ -93,8 +93,8 @@ def interpreted_replay(network, demand, policy, streams, seed):
 
 
 def compare_rates(label, network, demand, result, accept, kernel_paths, python_paths, seed):
-    from rmkit.policies import FixedPolicy
-    from rmkit.simulate import replay
+    from rmkit.workflows.policies import FixedPolicy
+    from rmkit.workflows.simulate import replay
 
     policy = FixedPolicy(result)
     streams = demand.sample_streams(kernel_paths, seed)
@@ -144,7 +144,7 @@ def main() -> None:
 
 def kernel_rates(net, dem) -> None:
     from rmkit import get_solver, load_scenario
-    from rmkit.simulate import simulate
+    from rmkit.workflows.simulate import simulate
 
     dlp = get_solver("dlp").solve(net, dem)
     compare_rates(f"static bid prices ({INSTANCE})", net, dem, dlp,
@@ -163,7 +163,7 @@ def kernel_rates(net, dem) -> None:
 
 
 def lr_protocol(net, dem, iterations: int | None = None) -> None:
-    from rmkit.simulate import simulate
+    from rmkit.workflows.simulate import simulate
 
     # A budget re-solve starts from the period-0 multipliers (warm_start) and stops after
     # `iterations` subgradient steps: the bound is still valid, the bid prices near-final.

@@ -54,7 +54,7 @@ def write_grid(folder: Path, files: list[Path], label: str) -> Path:
 
 
 def timed_sweep(grid_path: Path, store: Path, workers: int) -> tuple[float, object]:
-    from rmkit.sweep import load_grid, open_sweep, run_sweep
+    from rmkit.workflows.sweep import load_grid, open_sweep, run_sweep
 
     grid = load_grid(grid_path)
     start = time.perf_counter()

@@ -34,8 +34,8 @@ from pathlib import Path
 
 import pandas as pd
 
-from rmkit.compare import compare
-from rmkit.scenario import load_scenario
+from rmkit.model.scenario import load_scenario
+from rmkit.workflows.compare import compare
 
 ROOT = next(p for p in [Path.cwd(), *Path.cwd().parents] if (p / "tests" / "data").is_dir())
 sys.path.insert(0, str(ROOT))

@@ -33,11 +33,11 @@
 # %%
 import os
 
-from rmkit.calibrate import calibrate
-from rmkit.commands.demo import example_path
-from rmkit.compare import compare, ranked
-from rmkit.plots import comparison_figure
-from rmkit.scenario import load_scenario
+from rmkit.cli.demo import example_path
+from rmkit.model.scenario import load_scenario
+from rmkit.workflows.calibrate import calibrate
+from rmkit.workflows.compare import compare, ranked
+from rmkit.workflows.plots import comparison_figure
 
 # %% tags=["parameters"]
 # Size of the run: "full" for the study, "small" for the automated check of this notebook

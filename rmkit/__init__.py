@@ -5,20 +5,21 @@ model; validate them before using them to steer real sales.
 """
 
 from rmkit._version import __version__
-from rmkit.demand import DemandModel, load_factor
 from rmkit.errors import InputError, ProblemTooLargeError, SolverError
-from rmkit.network import Leg, Network, Product
+from rmkit.methods.base import REGISTRY, Solver, Tags, get_solver, load_all, register
+from rmkit.model.demand import DemandModel, load_factor
+from rmkit.model.network import Leg, Network, Product
+from rmkit.model.scenario import Scenario, load_scenario, save_scenario, scenario_from_model
 from rmkit.results import SCHEMA, STATUSES, BookingState, SolveResult
-from rmkit.scenario import Scenario, load_scenario, save_scenario, scenario_from_model
-from rmkit.solver import REGISTRY, Solver, Tags, get_solver, load_all, register
 
 #: Workflow functions, imported on first use so that ``import rmkit`` (and ``rmkit info``) stays
-#: quick: name -> module. Functions named like their module (``rmkit.simulate.simulate``,
-#: ``rmkit.compare.compare``, ``rmkit.calibrate.calibrate``) are imported from that module: a
-#: package attribute of the same name would be replaced by the module on its first import.
+#: quick: name -> module.
 _LAZY = {
-    "compare_policies": "rmkit.simulate",
-    "open_sweep": "rmkit.sweep",
+    "simulate": "rmkit.workflows.simulate",
+    "compare_policies": "rmkit.workflows.simulate",
+    "compare": "rmkit.workflows.compare",
+    "calibrate": "rmkit.workflows.calibrate",
+    "open_sweep": "rmkit.workflows.sweep",
 }
 
 
@@ -47,6 +48,8 @@ __all__ = [
     "SolverError",
     "Tags",
     "__version__",
+    "calibrate",
+    "compare",
     "compare_policies",
     "get_solver",
     "load_all",
@@ -55,5 +58,6 @@ __all__ = [
     "open_sweep",
     "register",
     "save_scenario",
+    "simulate",
     "scenario_from_model",
 ]

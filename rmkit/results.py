@@ -29,7 +29,7 @@ import numpy as np
 
 from rmkit._version import __version__
 from rmkit.errors import InputError
-from rmkit.network import Network
+from rmkit.model.network import Network
 
 #: Shared status list (every back end's native status maps onto one of these).
 STATUSES = ("optimal", "optimal_inaccurate", "infeasible", "iteration_limit", "error")

@@ -14,7 +14,7 @@ import numpy as np
 from scipy.optimize import linprog
 
 from rmkit import DemandModel, Network, Solver, SolveResult, Tags
-from rmkit.solver import SolveOutput
+from rmkit.methods.base import SolveOutput
 from tests.instances import brute_force_values
 
 TOL = 1e-9  # the documented rounding slack of the rule fare >= sum of bid prices
@@ -212,7 +212,7 @@ def bernstein_halfwidth(values: np.ndarray, value_range: float, delta: float = 1
 def interpreted_kernels():
     """Run the simulator kernels as plain Python: every compiled function of the kernel module is
     swapped for its ``py_func`` (so the loop's calls to its helpers are interpreted too)."""
-    import rmkit._sim_kernels as kernels
+    import rmkit.kernels.replay as kernels
 
     compiled = {k: v for k, v in vars(kernels).items() if hasattr(v, "py_func")}
     try:
@@ -225,9 +225,9 @@ def interpreted_kernels():
 
 
 def kernel_both_ways(args_before_book: tuple, make_book) -> tuple[list, list]:
-    """Books after :func:`rmkit._sim_kernels.run_requests` ran compiled and interpreted on the
+    """Books after :func:`rmkit.kernels.replay.run_requests` ran compiled and interpreted on the
     same inputs (``make_book()`` gives fresh seats, revenue, accepted, rejected, sold, next)."""
-    from rmkit._sim_kernels import run_requests
+    from rmkit.kernels.replay import run_requests
 
     compiled = make_book()
     run_requests(*args_before_book, *compiled)

@@ -16,10 +16,10 @@ import numpy as np
 import pytest
 
 from rmkit import InputError, get_solver
-from rmkit.calibrate import TUNABLES, ScaledPolicy, calibrate, parse_range, tunable_names
-from rmkit.policies import SolverPolicy
-from rmkit.scenario import save_scenario, scenario_from_model
-from rmkit.simulate import simulate
+from rmkit.model.scenario import save_scenario, scenario_from_model
+from rmkit.workflows.calibrate import TUNABLES, ScaledPolicy, calibrate, parse_range, tunable_names
+from rmkit.workflows.policies import SolverPolicy
+from rmkit.workflows.simulate import simulate
 from tests.instances import brute_force_values, small_problem
 
 

@@ -3,7 +3,7 @@
 Independent references: exact values are checked against the plain backward induction of
 tests/instances.py (Talluri & van Ryzin 2004, section 3.1, written apart from rmkit's kernels);
 the simulated visit shares of the optimal policy against the exact forward recursion of
-rmkit.exact_dp.visit_distribution (a different algorithm: probability mass pushed period by
+rmkit.methods.shared.network_dp.visit_distribution (a different algorithm: probability mass pushed period by
 period, no sampling).
 """
 
@@ -19,7 +19,10 @@ import pytest
 import xarray as xr
 
 from rmkit import InputError, get_solver
-from rmkit.compare import (
+from rmkit.model.network import Network
+from rmkit.model.scenario import save_scenario, scenario_from_model
+from rmkit.results import SolveResult
+from rmkit.workflows.compare import (
     Visits,
     check_allocation,
     check_paths,
@@ -29,9 +32,6 @@ from rmkit.compare import (
     ranked,
     visit_weighted_errors,
 )
-from rmkit.network import Network
-from rmkit.results import SolveResult
-from rmkit.scenario import save_scenario, scenario_from_model
 from tests.conftest import DATA, EXAMPLE
 from tests.instances import brute_force_values, random_problem, small_problem
 
@@ -175,7 +175,7 @@ def test_one_leg_table_of_exact_seat_values_has_zero_error():
     visits = optimal_visits(net, dem, exact, dem.sample_streams(200, 3))
     fake = SolveResult(method="exact-table", network=net, n_periods=10,
                        variables={"value": np.float64(0.0), "bid_price_table": table})
-    from rmkit.compare import exact_values_at
+    from rmkit.workflows.compare import exact_values_at
 
     leg, cost = exact_values_at(net, dem, visits)
     errors = visit_weighted_errors(visits, net.incidence, leg, cost,
@@ -192,7 +192,7 @@ def test_one_leg_table_of_exact_seat_values_has_zero_error():
 
 
 def test_visit_shares_agree_with_the_exact_forward_recursion():
-    from rmkit.exact_dp import flat_index, grid_strides, visit_distribution
+    from rmkit.methods.shared.network_dp import flat_index, grid_strides, visit_distribution
 
     net, dem = random_problem(11, n_legs=2, max_capacity=3, n_products=4, n_periods=8)
     exact = get_solver("exact").solve(net, dem)
@@ -208,7 +208,7 @@ def test_visit_shares_agree_with_the_exact_forward_recursion():
 
 
 def test_trajectory_kernel_matches_its_python_version():
-    from rmkit._visit_kernels import exact_trajectories
+    from rmkit.kernels.visits import exact_trajectories
 
     net, dem = small_problem()
     exact = get_solver("exact").solve(net, dem)
@@ -235,7 +235,7 @@ def test_unknown_method_lists_valid_ones(problem):
 
 
 def test_method_that_cannot_run_is_skipped_with_the_reason():
-    from rmkit.scenario import load_scenario
+    from rmkit.model.scenario import load_scenario
 
     sc = load_scenario(DATA / "rm_200_4_1.0_4.0.txt.gz")
     ds = compare(sc.network, sc.demand, methods=["exact", "dlp"], paths=30, seed=1)
@@ -271,7 +271,7 @@ def test_independent_checks_catch_violations(ds, problem):
 def test_plot_is_a_png_of_sensible_size(ds, tmp_path):
     import matplotlib.image as mpimg
 
-    from rmkit.plots import comparison_figure
+    from rmkit.workflows.plots import comparison_figure
 
     path = tmp_path / "comparison.png"
     comparison_figure(ds, path)

@@ -9,14 +9,14 @@ import pytest
 from scipy.optimize import linprog
 
 from rmkit import BookingState, DemandModel, InputError, Network, get_solver, load_all
-from rmkit.fare_adjust import (
+from rmkit.methods.shared.fare_basis import (
     full_fares,
     leg_classes,
     moments_to_come,
     network_fares,
     prorated_fares,
 )
-from rmkit.leg_heuristics import emsr_b, group_fares
+from rmkit.methods.shared.leg_heuristics import emsr_b, group_fares
 
 needs_dlp = pytest.mark.skipif("dlp" not in load_all(), reason="the dlp solver is not registered")
 
@@ -252,7 +252,7 @@ def test_value_is_each_legs_static_revenue_at_prorated_shares(method):
     Rebuilt leg by leg from the public static-model functions. The connection's fare 200 splits
     125 / 75 by the one-leg fares 100 and 60, so crediting a leg with another leg's share shows.
     """
-    from rmkit.leg_heuristics import demand_pmf, levels_from_seat_values, nested_sales
+    from rmkit.methods.shared.leg_heuristics import demand_pmf, levels_from_seat_values, nested_sales
 
     net, dem = two_legs()
     state = BookingState(period=10, capacity=(7, 4))

@@ -21,16 +21,16 @@ import scipy.sparse as sp
 from scipy.optimize import linprog
 
 from rmkit import BookingState, DemandModel, Network, get_solver
-from rmkit._decomposition_kernels import (
+from rmkit.kernels.decomposition import (
     average_and_lower_bound,
     leg_acceptance_batch,
     split_direction,
     step_and_project,
 )
-from rmkit._single_leg_kernels import leg_values_batch
-from rmkit.benchmark_io import read_hub_spoke
-from rmkit.decomposition import leg_tables, product_legs
-from rmkit.solvers.dpd import displaced_fares
+from rmkit.kernels.single_leg import leg_values_batch
+from rmkit.methods.dpd import displaced_fares
+from rmkit.methods.shared.leg_dp import leg_tables, product_legs
+from rmkit.model.hub_spoke import read_hub_spoke
 from tests.conftest import vendored
 from tests.instances import brute_force_values, random_problem, small_problem
 from tests.published import DLP_BOUND, LR_BOUND, POLICY_REVENUE

@@ -10,8 +10,8 @@ import pytest
 import scipy.sparse as sp
 
 from rmkit import BookingState, DemandModel, InputError, Network, ProblemTooLargeError, get_solver
-from rmkit import _dp_kernels as kern
-from rmkit.exact_dp import (
+from rmkit.kernels import network_dp as kern
+from rmkit.methods.shared.network_dp import (
     _layout,
     estimate,
     grid_states,
@@ -23,7 +23,7 @@ from rmkit.exact_dp import (
     solve_network_dp,
     visit_distribution,
 )
-from rmkit.single_leg import single_leg_dp
+from rmkit.methods.shared.single_leg import single_leg_dp
 from tests.conftest import EXAMPLE
 from tests.instances import brute_force_values, random_problem, small_problem
 

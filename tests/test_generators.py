@@ -17,10 +17,10 @@ import numpy as np
 import pytest
 
 from rmkit import InputError, load_scenario
-from rmkit.benchmark_io import parse_instance_name
-from rmkit.demand import load_factor
-from rmkit.generators import hub_and_spoke, line_network
-from rmkit.scenario import save_scenario
+from rmkit.model.demand import load_factor
+from rmkit.model.generators import hub_and_spoke, line_network
+from rmkit.model.hub_spoke import parse_instance_name
+from rmkit.model.scenario import save_scenario
 from tests.conftest import ROOT, instance_path
 
 

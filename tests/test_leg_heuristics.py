@@ -13,7 +13,7 @@ import pytest
 from scipy.stats import binom, norm, poisson
 
 from rmkit import InputError
-from rmkit.leg_heuristics import (
+from rmkit.methods.shared.leg_heuristics import (
     booking_limits,
     demand_pmf,
     emsr_a,
@@ -28,7 +28,7 @@ from rmkit.leg_heuristics import (
     nested_sales,
     optimal_protection_levels,
 )
-from rmkit.single_leg import single_leg_dp
+from rmkit.methods.shared.single_leg import single_leg_dp
 
 # Talluri & van Ryzin (2004), The Theory and Practice of Revenue Management, ch. 2, EMSR example.
 TVR_FARES = [1050.0, 567.0, 534.0, 520.0]
@@ -415,10 +415,10 @@ def test_module_examples_run():
     """The hand-checkable examples in the module docstrings hold."""
     import doctest
 
-    import rmkit.fare_adjust
-    import rmkit.leg_heuristics
+    import rmkit.methods.shared.fare_basis
+    import rmkit.methods.shared.leg_heuristics
 
-    for module in (rmkit.leg_heuristics, rmkit.fare_adjust):
+    for module in (rmkit.methods.shared.leg_heuristics, rmkit.methods.shared.fare_basis):
         failed, tried = doctest.testmod(module)
         assert tried > 0 and failed == 0
 

@@ -16,9 +16,9 @@ import pytest
 from scipy.optimize import linprog
 
 from rmkit import BookingState, DemandModel, Network, SolverError, get_solver
-from rmkit.benchmark_io import read_hub_spoke
 from rmkit.errors import InputError
-from rmkit.lp_model import NetworkLP
+from rmkit.methods.shared.network_lp import NetworkLP
+from rmkit.model.hub_spoke import read_hub_spoke
 from tests.conftest import HUB_SPOKE, instance_path, shared_names, vendored
 from tests.instances import brute_force_values, random_problem, small_problem
 from tests.published import DLP_BOUND
@@ -188,7 +188,7 @@ def test_time_limit_gives_a_status_and_a_warning_not_zeros():
 
 
 def test_back_end_failure_raises_solver_error_with_advice(monkeypatch):
-    import rmkit.lp_model as lpm
+    import rmkit.methods.shared.network_lp as lpm
 
     monkeypatch.setattr(lpm, "map_status", lambda status: "error")
     net, dem = small_problem()
@@ -377,8 +377,8 @@ def test_time_limit_reported_for_every_method(method):
 
 @pytest.mark.parametrize("method", ["ph", "rlp", "pnlp"])
 def test_solver_failure_raises_with_advice(method, monkeypatch):
-    import rmkit.lp_model as lpm
-    import rmkit.solvers.pnlp as pnlp
+    import rmkit.methods.pnlp as pnlp
+    import rmkit.methods.shared.network_lp as lpm
 
     monkeypatch.setattr(lpm, "map_status", lambda status: "error")
     monkeypatch.setattr(pnlp, "map_status", lambda status: "error")
@@ -398,7 +398,7 @@ def test_bad_samples_are_refused_with_the_template():
 
 def test_huge_requests_are_refused_up_front_with_the_estimate(monkeypatch):
     from rmkit.errors import ProblemTooLargeError
-    from rmkit.solvers import pnlp
+    from rmkit.methods import pnlp
 
     net, dem = small_problem()
     with pytest.raises(ProblemTooLargeError, match=r"GiB .* use fewer samples"):
@@ -427,8 +427,8 @@ def test_a_solution_failing_its_recheck_is_downgraded_with_a_warning(monkeypatch
 
 
 def test_batch_failure_wins_over_an_earlier_inaccurate_solve():
-    from rmkit.lp_model import LPBatch
-    from rmkit.solvers.rlp import batch_failure
+    from rmkit.methods.rlp import batch_failure
+    from rmkit.methods.shared.network_lp import LPBatch
 
     nan = np.full((3, 1), np.nan)
     batch = LPBatch(

@@ -16,8 +16,8 @@ def test_every_public_name_resolves():
 
 
 def test_workflow_functions_are_the_modules_own():
-    from rmkit.simulate import compare_policies
-    from rmkit.sweep import open_sweep
+    from rmkit.workflows.simulate import compare_policies
+    from rmkit.workflows.sweep import open_sweep
 
     assert rmkit.compare_policies is compare_policies
     assert rmkit.open_sweep is open_sweep
@@ -28,7 +28,7 @@ def test_workflow_functions_are_the_modules_own():
 def test_import_and_info_do_not_load_heavy_modules():
     """`rmkit info` is called many times by scripts: it must not import xarray, numba or HiGHS."""
     code = (
-        "import sys, rmkit.cli, rmkit.commands.info;"
+        "import sys, rmkit.cli, rmkit.cli.info;"
         "print(sorted(m for m in ('xarray', 'numba', 'highspy', 'cvxpy', 'dask') if m in sys.modules))"
     )
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)

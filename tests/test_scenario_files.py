@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 
 from rmkit import InputError, load_factor, load_scenario, save_scenario, scenario_from_model
-from rmkit.benchmark_io import parse_instance_name
+from rmkit.model.hub_spoke import parse_instance_name
 from tests.conftest import DATA, EXAMPLE, HUB_SPOKE, shared_names
 
 

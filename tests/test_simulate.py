@@ -17,11 +17,11 @@ import xarray as xr
 from scipy.stats import binom, poisson
 
 from rmkit import DemandModel, InputError, Network, SolverError, SolveResult, Tags, load_all, load_scenario
-from rmkit._sim_kernels import CONTROL_CODES
 from rmkit.cli import main
-from rmkit.policies import FixedPolicy, make_policy
-from rmkit.simulate import compare_policies, replay, resolve_periods, simulate, summarize
-from rmkit.solver import SolveOutput
+from rmkit.kernels.replay import CONTROL_CODES
+from rmkit.methods.base import SolveOutput
+from rmkit.workflows.policies import FixedPolicy, make_policy
+from rmkit.workflows.simulate import compare_policies, replay, resolve_periods, simulate, summarize
 from tests.conftest import instance_path
 from tests.instances import brute_force_values, random_problem, small_problem
 from tests.published import POLICY_REVENUE

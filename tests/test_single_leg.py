@@ -7,8 +7,8 @@ import pytest
 from scipy.stats import binom
 
 from rmkit import InputError
-from rmkit._single_leg_kernels import leg_values_batch, single_leg_values
-from rmkit.single_leg import leg_values, single_leg_dp
+from rmkit.kernels.single_leg import leg_values_batch, single_leg_values
+from rmkit.methods.shared.single_leg import leg_values, single_leg_dp
 
 
 def plain_recursion(prob, fare, capacity):

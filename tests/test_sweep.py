@@ -21,7 +21,7 @@ import numpy as np
 import pytest
 
 from rmkit import InputError
-from rmkit.sweep import (
+from rmkit.workflows.sweep import (
     Store,
     expand_cells,
     grid_from_dict,

@@ -7,7 +7,7 @@ from hypothesis import given
 from hypothesis import strategies as st
 
 from rmkit import BookingState, get_solver
-from rmkit.leg_heuristics import (
+from rmkit.methods.shared.leg_heuristics import (
     booking_limits,
     demand_pmf,
     emsr_a,

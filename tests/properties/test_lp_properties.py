@@ -13,7 +13,7 @@ from hypothesis import strategies as st
 from scipy.optimize import linprog
 
 from rmkit import BookingState, get_solver
-from rmkit.lp_model import NetworkLP
+from rmkit.methods.shared.network_lp import NetworkLP
 from tests.instances import random_problem
 
 problems = st.builds(

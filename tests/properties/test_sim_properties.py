@@ -7,9 +7,9 @@ from hypothesis import given
 from hypothesis import strategies as st
 
 from rmkit import SolveResult
-from rmkit._sim_kernels import CONTROL_CODES
-from rmkit.policies import FixedPolicy, make_policy
-from rmkit.simulate import replay, simulate
+from rmkit.kernels.replay import CONTROL_CODES
+from rmkit.workflows.policies import FixedPolicy, make_policy
+from rmkit.workflows.simulate import replay, simulate
 from tests.properties.test_dp_properties import small_networks  # the shared random problems
 from tests.sim_reference import (
     bernstein_halfwidth,
@@ -126,8 +126,8 @@ def test_no_policy_beats_the_optimum(problem, seed):
 def test_kernel_equals_its_interpreted_self(case, seed, stop_after_sale):
     net, dem, policy, control = case
     source = make_policy(policy)
-    from rmkit.policies import control_arrays
-    from rmkit.simulate import _incidence_lists
+    from rmkit.workflows.policies import control_arrays
+    from rmkit.workflows.simulate import _incidence_lists
 
     arrays = control_arrays(control, source.control_at(net, dem, 0, net.capacities, 0), net,
                             net.capacities)

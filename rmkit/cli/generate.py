@@ -1,0 +1,76 @@
+"""``rmkit generate``: write a generated scenario (hub and spoke, or a line route) as TOML."""
+
+from __future__ import annotations
+
+import argparse
+
+from rmkit.cli._common import add_json, emit_json, print_table
+
+HELP = "generate a hub-and-spoke or line scenario from a seed and write it as TOML"
+
+
+def _fares(text: str) -> tuple[int, int]:
+    low, sep, high = text.partition(",")
+    try:
+        return int(low), int(high if sep else low)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected LOW,HIGH whole numbers, got {text!r}") from None
+
+
+def _common(p: argparse.ArgumentParser, periods: int, arrival: float, fares: str) -> None:
+    p.add_argument("--alpha", type=float, required=True,
+                   help="load factor: expected seat requests / total capacity (met exactly)")
+    p.add_argument("--periods", type=int, default=periods, help=f"booking periods (default {periods})")
+    p.add_argument("--arrival", type=float, default=arrival,
+                   help=f"requests per period before capacity is fitted (default {arrival})")
+    p.add_argument("--fares", type=_fares, default=_fares(fares), metavar="LOW,HIGH",
+                   help=f"range of the whole-number base fares (default {fares})")
+    p.add_argument("--seed", type=int, default=0, help="generator seed (default 0)")
+    p.add_argument("--out", required=True, help="scenario file to write (FILE.toml)")
+    add_json(p)
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    sub = parser.add_subparsers(dest="family", metavar="FAMILY", required=True)
+    hub = sub.add_parser("hub-spoke", help="one hub, N spokes, two fare classes (public family)")
+    hub.add_argument("--spokes", type=int, required=True, help="N: 2N legs, 2N(N+1) products")
+    hub.add_argument("--kappa", type=float, default=4.0, help="expensive / cheap fare (default 4)")
+    _common(hub, 200, 1.0, "20,100")
+    line = sub.add_parser("line", help="a bus or train line with every origin-destination product")
+    line.add_argument("--legs", type=int, required=True, help="k legs, k+1 stations")
+    line.add_argument("--classes", type=int, default=2, help="fare classes per pair (default 2)")
+    line.add_argument("--ratio", type=float, default=2.0,
+                      help="fare of the next class up / this class (default 2)")
+    line.add_argument("--taper", type=float, default=0.85,
+                      help="per-leg discount of longer trips, in (0, 1] (default 0.85)")
+    _common(line, 100, 0.5, "20,60")
+
+
+def run(args: argparse.Namespace) -> int:
+    from rmkit.cli.info import summary
+    from rmkit.errors import InputError
+    from rmkit.model.generators import generate
+    from rmkit.model.scenario import save_scenario
+
+    if not str(args.out).lower().endswith(".toml"):
+        raise InputError(f"--out: {args.out!r} should end in .toml")
+    common = {"alpha": args.alpha, "periods": args.periods, "arrival": args.arrival,
+              "fares": args.fares, "seed": args.seed}
+    if args.family == "hub-spoke":
+        scenario = generate("hub-spoke", spokes=args.spokes, kappa=args.kappa, **common)
+    else:
+        scenario = generate("line", legs=args.legs, classes=args.classes, ratio=args.ratio,
+                            taper=args.taper, **common)
+    from rmkit.cli._common import write_atomically
+
+    write_atomically(args.out, lambda tmp: save_scenario(scenario, tmp))
+    info = summary(scenario)
+    if args.json:
+        emit_json({**info, "out": args.out})
+        return 0
+    print_table(
+        f"{scenario.name} written to {args.out}",
+        ["legs", "products", "periods", "alpha", "expected requests"],
+        [[info["legs"], info["products"], info["periods"], info["alpha"], info["expected_requests"]]],
+    )
+    return 0

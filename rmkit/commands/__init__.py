@@ -1,1 +1,0 @@
-"""Subcommands of the ``rmkit`` command line (see :mod:`rmkit.cli`)."""

@@ -1,0 +1,74 @@
+"""numba kernels of the single-leg dynamic program (Lee & Hersh 1993); no validation, no labels.
+
+The recursion (Talluri & van Ryzin 2004, section 2.5.1), for a leg of capacity C over periods
+``t = 0 .. T-1`` with request probabilities ``p[t, j]`` and fares ``f[t, j]``::
+
+    V_T(x) = 0,   V_t(0) = 0,
+    V_t(x) = V_{t+1}(x) + sum_j p[t, j] * max(0, f[t, j] - (V_{t+1}(x) - V_{t+1}(x - 1)))
+
+A fare ``<= 0`` is never accepted (its term is skipped). The terms are added in product order,
+starting from ``V_{t+1}(x)``, with no fused multiply-add, so the network kernels in
+``rmkit.kernels.network_dp`` reproduce these numbers bit for bit on a one-leg network.
+
+Loop order: products outside, seats inside, so the inner loop runs along one contiguous row of
+``value_out`` with no branch and the compiler vectorises it.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from numba import njit, prange
+
+
+@njit(cache=True)
+def _leg_values_into(prob: np.ndarray, fare: np.ndarray, capacity: int, value: np.ndarray) -> None:
+    """Fill ``value[:, :capacity+1]`` (T+1 rows) for one leg; columns past capacity untouched."""
+    n_periods, n_products = prob.shape
+    for x in range(capacity + 1):
+        value[n_periods, x] = 0.0
+    for t in range(n_periods - 1, -1, -1):
+        nxt = value[t + 1]
+        cur = value[t]
+        cur[0] = 0.0
+        for x in range(1, capacity + 1):
+            cur[x] = nxt[x]
+        for j in range(n_products):
+            f = fare[t, j]
+            p = prob[t, j]
+            if f <= 0.0 or p == 0.0:
+                continue
+            for x in range(1, capacity + 1):
+                cur[x] += p * max(f - (nxt[x] - nxt[x - 1]), 0.0)
+
+
+@njit(cache=True)
+def single_leg_values(
+    prob: np.ndarray, fare: np.ndarray, capacity: int, value_out: np.ndarray
+) -> None:
+    """Value to go of one leg: ``value_out[t, x]`` = V_t(x) for ``t = 0..T``, ``x = 0..capacity``.
+
+    ``prob`` and ``fare`` are ``(T, n)``; ``value_out`` is a preallocated ``(T+1, capacity+1)``
+    float64 array, overwritten.
+    """
+    _leg_values_into(prob, fare, capacity, value_out)
+
+
+@njit(cache=True, parallel=True)
+def leg_values_batch(
+    prob: np.ndarray, fares: np.ndarray, capacities: np.ndarray, value_out: np.ndarray
+) -> None:
+    """Value to go of L legs at once, in parallel over legs.
+
+    ``prob`` is ``(T, n)`` (shared by every leg), ``fares`` ``(L, T, n)`` (per leg and period;
+    ``<= 0`` means the product is never accepted on that leg), ``capacities`` ``(L,)`` int,
+    ``value_out`` ``(L, T+1, cmax+1)`` float64 with ``cmax >= max(capacities)``. Entries above a
+    leg's capacity are set to NaN.
+    """
+    n_legs = fares.shape[0]
+    width = value_out.shape[2]
+    for leg in prange(n_legs):
+        c = capacities[leg]
+        _leg_values_into(prob, fares[leg], c, value_out[leg])
+        for t in range(value_out.shape[1]):
+            for x in range(c + 1, width):
+                value_out[leg, t, x] = np.nan

@@ -1,0 +1,214 @@
+"""The solver interface and the registry of methods.
+
+Every method is a subclass of :class:`Solver` in its own module under ``rmkit/solvers/``,
+registered with the :func:`register` decorator. Settings are keyword-only, stored as given and
+checked when :meth:`Solver.solve` runs; the one signature is
+``solve(network, demand, *, state=None, seed=None) -> SolveResult``.
+
+Adding a method: write ``rmkit/solvers/my_method.py`` with a ``@register`` class that sets
+``name``, ``tags``, ``citation``, ``params`` and implements ``_solve``. The registry imports every
+module in that package, so the method is then selectable by name everywhere and the shared
+contract tests (tests/test_contract.py) run on it automatically.
+"""
+
+from __future__ import annotations
+
+import importlib
+import pkgutil
+from collections.abc import Callable, Mapping
+from dataclasses import dataclass, field
+from typing import Any, ClassVar
+
+import numpy as np
+
+from rmkit.errors import InputError, param_error
+from rmkit.model.demand import DemandModel, check_compatible
+from rmkit.model.network import Network
+from rmkit.results import BookingState, SolveResult, Timer
+
+
+@dataclass(frozen=True)
+class Tags:
+    """What a method is, which decides what comparisons may conclude and which checks apply."""
+
+    exact: bool = False  # gives the optimum of the network DP
+    upper_bound: bool = False  # value is an upper bound on the optimum
+    heuristic: bool = False  # value carries no guarantee
+    stochastic: bool = False  # uses random samples (seeded)
+    small_state_space: bool = False  # only runs where the network DP state space is small
+    capacity_dependent: bool = False  # bid prices depend on seats left and period
+    gives_bid_prices: bool = True  # False for pure bounds (e.g. perfect hindsight)
+    control: str = "bid_price"  # how the simulator applies it: bid_price, table, nested, exact
+
+
+@dataclass(frozen=True)
+class Param:
+    """A solver setting: its default, the rule in words, and a check of that rule."""
+
+    default: Any
+    rule: str
+    check: Callable[[Any], bool]
+
+
+def positive_int(v: Any) -> bool:
+    return isinstance(v, (int, np.integer)) and not isinstance(v, bool) and v >= 1
+
+
+def non_negative_int(v: Any) -> bool:
+    return isinstance(v, (int, np.integer)) and not isinstance(v, bool) and v >= 0
+
+
+def positive_float(v: Any) -> bool:
+    return isinstance(v, (int, float, np.floating, np.integer)) and not isinstance(v, bool) and (
+        np.isfinite(v) and v > 0
+    )
+
+
+def one_of(*choices: str) -> Callable[[Any], bool]:
+    return lambda v: v in choices
+
+
+@dataclass(frozen=True, eq=False)
+class Problem:
+    """A validated (network, demand, state) triple handed to ``_solve``."""
+
+    network: Network
+    demand: DemandModel
+    period: int
+    capacity: np.ndarray = field(repr=False)
+
+    @property
+    def probabilities(self) -> np.ndarray:
+        """Request probabilities of the periods still to come, ``(T - period, n)``."""
+        return self.demand.probabilities[self.period :]
+
+    @property
+    def demand_to_come(self) -> np.ndarray:
+        return self.demand.demand_to_come(self.period)
+
+
+@dataclass
+class SolveOutput:
+    """What ``_solve`` returns; :meth:`Solver.solve` packages it into a :class:`SolveResult`."""
+
+    variables: dict[str, np.ndarray]
+    status: str = "optimal"
+    message: str = ""
+    payload: dict[str, Any] = field(default_factory=dict)
+
+
+class Solver:
+    """Base class of every bid-price method and bound."""
+
+    name: ClassVar[str] = ""
+    tags: ClassVar[Tags] = Tags()
+    citation: ClassVar[str] = ""
+    params: ClassVar[Mapping[str, Param]] = {}
+    #: Error raised when :meth:`accepts` refuses a problem (a size refusal sets ProblemTooLargeError).
+    refusal: ClassVar[type[InputError]] = InputError
+
+    def __init__(self, **settings: Any) -> None:
+        unknown = sorted(set(settings) - set(self.params))
+        if unknown:
+            valid = ", ".join(sorted(self.params)) or "none"
+            raise InputError(
+                f"{self.name}: unknown parameter {unknown[0]!r}; valid parameters: {valid}"
+            )
+        self._settings = dict(settings)
+
+    def get_params(self) -> dict[str, Any]:
+        """Every setting, defaults filled in, as given (not validated)."""
+        out = {k: p.default for k, p in self.params.items()}
+        out.update(self._settings)
+        return out
+
+    def _checked_params(self) -> dict[str, Any]:
+        out = self.get_params()
+        for key, value in out.items():
+            rule = self.params[key]
+            if not rule.check(value):
+                raise param_error(self.name, key, rule.rule, value)
+        return out
+
+    def __repr__(self) -> str:
+        args = ", ".join(f"{k}={v!r}" for k, v in self._settings.items())
+        return f"{type(self).__name__}({args})"
+
+    def accepts(self, network: Network, demand: DemandModel) -> str | None:
+        """``None`` when the method can run on this problem, else the reason it cannot."""
+        return None
+
+    def solve(
+        self,
+        network: Network,
+        demand: DemandModel,
+        *,
+        state: BookingState | None = None,
+        seed: int | None = None,
+    ) -> SolveResult:
+        """Solve from ``state`` (default: period 0, full capacity); never mutates its inputs."""
+        params = self._checked_params()
+        check_compatible(network, demand)
+        period, capacity = (state or BookingState()).resolve(network, demand.n_periods)
+        reason = self.accepts(network, demand)
+        if reason is not None:
+            raise self.refusal(f"{self.name}: cannot run on this problem: {reason}")
+        if seed is None and self.tags.stochastic:
+            seed = 0
+        problem = Problem(network, demand, period, capacity)
+        with Timer() as timer:
+            out = self._solve(problem, params, seed)
+        return SolveResult(
+            method=self.name,
+            network=network,
+            n_periods=demand.n_periods,
+            variables=out.variables,
+            status=out.status,
+            parameters=params,
+            seed=seed,
+            seconds=timer.seconds,
+            period=period,
+            capacity=tuple(int(c) for c in capacity),
+            message=out.message,
+            payload=out.payload,
+        )
+
+    def _solve(self, problem: Problem, params: dict[str, Any], seed: int | None) -> SolveOutput:
+        raise NotImplementedError
+
+
+REGISTRY: dict[str, type[Solver]] = {}
+_loaded = False
+
+
+def register(cls: type[Solver]) -> type[Solver]:
+    """Class decorator: make a solver selectable by its ``name``."""
+    if not cls.name:
+        raise TypeError(f"{cls.__name__} needs a non-empty 'name'")
+    if cls.name in REGISTRY and REGISTRY[cls.name] is not cls:
+        raise TypeError(f"two solvers are named {cls.name!r}")
+    if not cls.citation:
+        raise TypeError(f"{cls.__name__} must cite its paper in 'citation'")
+    REGISTRY[cls.name] = cls
+    return cls
+
+
+def load_all() -> dict[str, type[Solver]]:
+    """Import every module of ``rmkit.methods`` (each registers itself); return the registry."""
+    global _loaded
+    if not _loaded:
+        import rmkit.methods as pkg
+
+        for info in pkgutil.iter_modules(pkg.__path__):
+            if not (info.ispkg or info.name.startswith("_") or info.name == "base"):
+                importlib.import_module(f"rmkit.methods.{info.name}")
+        _loaded = True
+    return REGISTRY
+
+
+def get_solver(name: str, **settings: Any) -> Solver:
+    """A solver instance by method name; an unknown name lists the valid ones."""
+    reg = load_all()
+    if name not in reg:
+        raise InputError(f"method: unknown method {name!r}; valid methods: {', '.join(sorted(reg))}")
+    return reg[name](**settings)

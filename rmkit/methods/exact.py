@@ -1,0 +1,98 @@
+"""``exact``: the network dynamic program solved over the whole capacity grid.
+
+The finite-horizon DP of the standard network model (Talluri & van Ryzin 2004, *The Theory and
+Practice of Revenue Management*, section 3.1; maths and conventions in
+:mod:`rmkit.methods.shared.network_dp`). Its value at the state solved from is the optimal expected
+revenue to go, the yardstick of every other method on small networks.
+
+Result variables
+----------------
+``value``
+    ``V_{t0}(x0)``.
+``bid_price``
+    Leg marginal values ``V_{t0+1}(x0) - V_{t0+1}(x0 - e_i)``; ``+inf`` for a leg with no seat
+    left (as in the ``bid_price_table`` convention of :mod:`rmkit.results`: no seat to sell).
+``opportunity_cost``
+    ``V_{t0+1}(x0) - V_{t0+1}(x0 - A_j)``; ``+inf`` when product j cannot be sold from x0.
+
+Payload (for the simulator's replay of the optimal policy; not exported)
+-------------------------------------------------------------------------
+``decision_bits``
+    uint8 ``(T - t0, n_states, ceil(n/8))``: bit ``j % 8`` of byte ``j // 8`` is 1 iff accepting
+    product j in period ``t0 + k`` at flat state s is optimal (feasible and
+    ``f_j >= V_{t+1}(x) - V_{t+1}(x - A_j)``, ties accept). Absent when ``keep_decisions=False``.
+``state_strides``
+    int64 ``(n_legs,)`` row-major strides over ``(c_0+1, ..., c_{m-1}+1)`` of the network's FULL
+    capacities: ``s = sum_i x_i * stride_i``.
+``values``
+    float64 ``(n_states,)``: ``V_{t0}`` over the whole grid.
+
+Problems whose estimated memory exceeds ``max_memory_gb`` are refused up front
+(:class:`rmkit.errors.ProblemTooLargeError`); :meth:`ExactDP.accepts` gives the same reason so
+comparisons can skip the method.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+
+from rmkit.errors import ProblemTooLargeError
+from rmkit.methods.base import Param, Problem, SolveOutput, Solver, Tags, positive_float, register
+from rmkit.methods.shared.network_dp import (
+    DEFAULT_MAX_MEMORY_GB,
+    flat_index,
+    solve_network_dp,
+    too_large_reason,
+)
+from rmkit.model.demand import DemandModel
+from rmkit.model.network import Network
+
+
+def _is_bool(v: Any) -> bool:
+    return isinstance(v, bool)
+
+
+@register
+class ExactDP(Solver):
+    """Exact network DP by backward induction (Talluri & van Ryzin 2004, section 3.1)."""
+
+    name = "exact"
+    tags = Tags(exact=True, upper_bound=False, small_state_space=True, control="exact")
+    citation = (
+        "K. T. Talluri and G. J. van Ryzin (2004), The Theory and Practice of Revenue "
+        "Management, Springer, sec. 3.1 (the network dynamic program)"
+    )
+    refusal = ProblemTooLargeError
+    params = {
+        "max_memory_gb": Param(DEFAULT_MAX_MEMORY_GB, "a number of GiB > 0", positive_float),
+        "keep_decisions": Param(True, "True or False", _is_bool),
+    }
+
+    def accepts(self, network: Network, demand: DemandModel) -> str | None:
+        params = self._checked_params()
+        return too_large_reason(
+            network, demand.n_periods, float(params["max_memory_gb"]), params["keep_decisions"]
+        )
+
+    def _solve(self, problem: Problem, params: dict[str, Any], seed: int | None) -> SolveOutput:
+        dp = solve_network_dp(
+            problem.network,
+            problem.demand,
+            problem.period,
+            keep_decisions=params["keep_decisions"],
+            max_memory_gb=float(params["max_memory_gb"]),
+        )
+        x0 = problem.capacity
+        payload: dict[str, Any] = {"state_strides": dp.strides, "values": dp.values}
+        if dp.decision_bits is not None:
+            payload["decision_bits"] = dp.decision_bits
+        return SolveOutput(
+            variables={
+                "value": np.float64(dp.values[flat_index(x0, dp.strides)]),
+                "bid_price": dp.bid_prices_at(x0),
+                "opportunity_cost": dp.opportunity_costs_at(x0),
+            },
+            payload=payload,
+        )

@@ -1,0 +1,1 @@
+"""The problem: the network, demand models, scenario files, benchmark readers and generators."""

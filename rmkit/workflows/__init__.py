@@ -1,0 +1,1 @@
+"""What a scientist runs on methods: simulation, comparison, calibration, sweeps and figures."""

@@ -1,0 +1,765 @@
+"""Compare methods value by value: bounds, bid prices, simulated revenue, and errors against the optimum.
+
+:func:`compare` runs every requested method on one scenario and stacks what they give along a
+``method`` dim of one ``xarray.Dataset`` (``join="exact"``, so mismatched labels fail loudly):
+
+* the value of each method (the optimum for ``exact``, an upper bound for ``dlp``, ``lr``, ``ph``
+  ..., the method's own estimate for heuristics) with its standard error when it is sampled;
+* its bid prices at the start (``bid_price``, over ``leg``) and, for capacity- and
+  time-dependent methods, the whole table (``bid_price_table``, over ``period``, ``capacity``,
+  ``leg``; conventions of :mod:`rmkit.results`);
+* the simulated revenue of its booking policy on the same request streams for every method
+  (common random numbers), with the 95% interval and the paired difference against the best
+  policy (:mod:`rmkit.workflows.simulate`);
+* where the exact DP fits, the error of its bid prices against the exact marginal values where
+  the optimal policy actually goes (below), and the revenue gap to the optimum in percent (to the
+  best upper bound otherwise).
+
+Value-by-value errors
+---------------------
+Let ``V_t`` be the exact value function. At period t and seats left x the exact bid price of leg
+i is ``m_i(t, x) = V_{t+1}(x) - V_{t+1}(x - e_i)`` and the opportunity cost of product j is
+``o_j(t, x) = V_{t+1}(x) - V_{t+1}(x - A_j)`` (Talluri & van Ryzin 2004, section 3.1). A method
+quotes ``b_i(t, x)``: its table entry at ``(t, x_i)`` for capacity- and time-dependent methods, its
+vector solved at the start of the horizon for static ones (no re-solve), and prices a product at
+``sum_i A_ij b_i(t, x)``. Let ``w(t, x)`` be the share of (path, period) pairs in which the optimal
+policy, simulated on the first ``visit_paths`` request streams, starts period t in state x. Then
+
+    bid_price_error_mean = sum_{t,x} w(t,x) sum_{i: x_i >= 1} |b_i - m_i|
+                           / sum_{t,x} w(t,x) #{i: x_i >= 1}
+    bid_price_error_max  = max over visited (t, x) and legs with x_i >= 1 of |b_i - m_i|
+
+and the same with products that can be sold at x (``x >= A_j``) for the opportunity costs. Errors
+in states the optimal policy never reaches do not count. The exact values at the visited states
+come from one more backward pass that records ``V_{t+1}`` at those states and their neighbours
+(:func:`rmkit.methods.shared.network_dp.solve_network_dp` with ``probe``).
+
+Independent verification
+------------------------
+Whoever produced them, every allocation a method returns is re-checked against ``A y <= x,
+y >= 0`` and every simulated path against the network: seats sold on each leg never exceed its
+capacity, seats left equal capacity minus the seats the accepted products use, and revenue equals
+the fares of the accepted products. The ``check`` variable says ``ok`` or what failed.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import time
+import warnings
+from collections.abc import Callable, Iterator, Mapping, Sequence
+from contextlib import contextmanager
+from dataclasses import dataclass, field
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+
+from rmkit._version import __version__
+from rmkit.errors import InputError, SolverError
+from rmkit.model.demand import DemandModel, check_compatible
+from rmkit.model.network import Network
+from rmkit.results import SolveResult
+
+if TYPE_CHECKING:  # pragma: no cover
+    import xarray as xr
+
+    from rmkit.methods.base import Solver
+
+DEFAULT_PATHS = 500
+DEFAULT_VISIT_PATHS = 200
+#: Relative slack when re-checking ``A y <= x`` on an LP allocation (solver rounding).
+ALLOCATION_TOLERANCE = 1e-7
+
+#: Fewest visits of a (period, seats left on a leg) cell for the exact table to show a value.
+MIN_TABLE_VISITS = 5
+KINDS = ("optimum", "upper bound", "heuristic")
+ERROR_NAMES = (
+    "bid_price_error_mean",
+    "bid_price_error_max",
+    "opportunity_cost_error_mean",
+    "opportunity_cost_error_max",
+)
+
+
+# ---------------------------------------------------------------- methods
+@dataclass
+class MethodRun:
+    """One method's fate in a comparison: what it is, whether it ran, and what it gave."""
+
+    name: str
+    kind: str
+    status: str  # "ran", "skipped" or "failed"
+    reason: str = ""
+    solver: Solver | None = None
+    result: SolveResult | None = None
+    simulation: Any = None  # xarray.Dataset from rmkit.workflows.simulate.simulate
+    simulate_seconds: float = math.nan
+    check: str = ""
+    warnings: list[str] = field(default_factory=list)
+
+    def note(self) -> str:
+        """The distinct warnings raised while solving or simulating, counted."""
+        if not self.warnings:
+            return ""
+        distinct = list(dict.fromkeys(self.warnings))
+        more = f" (and {len(distinct) - 1} other kinds)" if len(distinct) > 1 else ""
+        return f"{len(self.warnings)} warning(s), e.g.: {distinct[0]}{more}"
+
+
+def kind_of(solver: Solver) -> str:
+    tags = solver.tags
+    return "optimum" if tags.exact else "upper bound" if tags.upper_bound else "heuristic"
+
+
+def select_methods(methods: Sequence[str] | str | None) -> list[str]:
+    """Method names to run (default: every registered one); an unknown name lists the valid ones."""
+    from rmkit.methods.base import load_all
+
+    registry = load_all()
+    if methods is None:
+        return sorted(registry)
+    if isinstance(methods, str):
+        methods = [m.strip() for m in methods.split(",") if m.strip()]
+    names = list(dict.fromkeys(methods))
+    if not names:
+        raise InputError("methods: the list is empty; give at least one method name")
+    for name in names:
+        if name not in registry:
+            raise InputError(
+                f"methods: unknown method {name!r}; valid methods: {', '.join(sorted(registry))}"
+            )
+    return names
+
+
+def run_methods(
+    network: Network,
+    demand: DemandModel,
+    names: Sequence[str],
+    *,
+    seed: int,
+    settings: Mapping[str, Mapping[str, Any]] | None = None,
+    progress: Callable[[str], None] | None = None,
+) -> list[MethodRun]:
+    """Solve every method from period 0 at full capacity; skip (with the reason) what cannot run."""
+    from rmkit.errors import ProblemTooLargeError
+    from rmkit.methods.base import get_solver
+
+    settings = dict(settings or {})
+    unknown = sorted(set(settings) - set(names))
+    if unknown:
+        raise InputError(
+            f"settings: given for {unknown[0]!r}, which is not among the methods compared "
+            f"({', '.join(names)})"
+        )
+    runs = []
+    for name in names:
+        solver = get_solver(name, **dict(settings.get(name, {})))
+        run = MethodRun(name=name, kind=kind_of(solver), status="ran", solver=solver)
+        reason = solver.accepts(network, demand)
+        if reason is not None:
+            run.status, run.reason = "skipped", reason
+            runs.append(run)
+            continue
+        if progress:
+            progress(f"solving {name}")
+        try:
+            with _collect(run):
+                run.result = solver.solve(network, demand, seed=seed)
+        except ProblemTooLargeError as err:
+            run.status, run.reason = "skipped", str(err)
+        except (SolverError, InputError) as err:
+            run.status, run.reason = "failed", str(err)
+        if run.result is not None and run.result.status in ("error", "infeasible"):
+            run.status = "failed"
+            run.reason = f"status {run.result.status}: {run.result.message}"
+        runs.append(run)
+    return runs
+
+
+@contextmanager
+def _collect(run: MethodRun) -> Iterator[None]:
+    """Keep a method's warnings on its record (one line each) instead of flooding the output."""
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        try:
+            yield
+        finally:
+            run.warnings.extend(str(w.message).splitlines()[0] for w in caught)
+
+
+# ---------------------------------------------------------------- verification
+def check_allocation(network: Network, result: SolveResult) -> str:
+    """``ok`` when the result's allocation (if any) satisfies ``A y <= x, y >= 0``."""
+    if "allocation" not in result:
+        return "ok"
+    y = np.asarray(result["allocation"], dtype=np.float64)
+    x = np.asarray(result.capacity, dtype=np.float64)
+    used = network.incidence @ y
+    slack = ALLOCATION_TOLERANCE * (1.0 + x)
+    if not np.all(np.isfinite(y)):
+        return "allocation has non-finite entries"
+    if np.any(y < -ALLOCATION_TOLERANCE):
+        j = int(np.argmin(y))
+        return f"allocation of product {network.product_ids[j]!r} is {y[j]:.6g} < 0"
+    over = np.flatnonzero(used > x + slack)
+    if over.size:
+        i = int(over[0])
+        return (f"allocation uses {used[i]:.6g} seats of leg {network.leg_ids[i]!r}, which has "
+                f"{x[i]:.0f}")
+    return "ok"
+
+
+def check_paths(network: Network, sim: xr.Dataset) -> str:
+    """``ok`` when every simulated path respects capacity and its books add up."""
+    accepted = np.asarray(sim["accepted"].values, dtype=np.int64)
+    used = accepted @ network.incidence.T  # (path, leg)
+    caps = np.asarray(network.capacities, dtype=np.int64)
+    over = np.argwhere(used > caps[None, :])
+    if over.size:
+        k, i = (int(v) for v in over[0])
+        return f"path {k} sold {used[k, i]} seats on leg {network.leg_ids[i]!r} (capacity {caps[i]})"
+    left = np.asarray(sim["seats_left"].values, dtype=np.int64)
+    bad = np.argwhere(left != caps[None, :] - used)
+    if bad.size:
+        k, i = (int(v) for v in bad[0])
+        return f"path {k}: seats left on leg {network.leg_ids[i]!r} disagree with the sales"
+    revenue = accepted @ network.fares
+    got = np.asarray(sim["revenue"].values, dtype=np.float64)
+    wrong = np.flatnonzero(~np.isclose(got, revenue, rtol=1e-9, atol=1e-6))
+    if wrong.size:
+        k = int(wrong[0])
+        return f"path {k}: revenue {got[k]:.6g} differs from the fares sold {revenue[k]:.6g}"
+    return "ok"
+
+
+# ---------------------------------------------------------------- visits
+@dataclass(frozen=True)
+class Visits:
+    """Distinct (period, state) pairs the optimal policy visits, with their visit shares."""
+
+    period: np.ndarray  # (K,) int64
+    state: np.ndarray  # (K, m) int64
+    weight: np.ndarray  # (K,) float64, sums to 1
+    n_paths: int = 0
+
+    @property
+    def size(self) -> int:
+        return int(self.period.size)
+
+
+def optimal_visits(
+    network: Network, demand: DemandModel, exact: SolveResult, streams: np.ndarray
+) -> Visits:
+    """States at the start of each period along ``streams`` under the exact policy, counted."""
+    from rmkit.kernels.visits import exact_trajectories
+    from rmkit.methods.shared.network_dp import grid_states
+
+    bits = exact.payload.get("decision_bits")
+    strides = exact.payload.get("state_strides")
+    if bits is None or strides is None or exact.period != 0:
+        raise SolverError(
+            f"{exact.method}: needs the exact policy's decision_bits and state_strides solved "
+            "from period 0 to find the states it visits"
+        )
+    n_paths, n_periods = streams.shape
+    a = np.asarray(network.incidence)
+    leg_list = np.ascontiguousarray(np.nonzero(a.T)[1], dtype=np.int64)
+    leg_ptr = np.concatenate([[0], np.cumsum(a.sum(axis=0))]).astype(np.int64)
+    seats = np.tile(np.asarray(network.capacities, dtype=np.int64), (n_paths, 1))
+    flat = np.empty((n_paths, n_periods), dtype=np.int64)
+    exact_trajectories(np.ascontiguousarray(streams, dtype=np.int32),
+                       np.ascontiguousarray(bits, dtype=np.uint8),
+                       np.ascontiguousarray(strides, dtype=np.int64), leg_ptr, leg_list, seats,
+                       flat)
+    n_states = network.state_space_size
+    key = np.arange(n_periods, dtype=np.int64)[None, :] * n_states + flat
+    pairs, counts = np.unique(key.ravel(), return_counts=True)
+    period, state = np.divmod(pairs, n_states)
+    grid = grid_states(network.capacities)
+    return Visits(period=period, state=grid[state], weight=counts / counts.sum(), n_paths=n_paths)
+
+
+def exact_values_at(
+    network: Network, demand: DemandModel, visits: Visits, max_memory_gb: float = 4.0
+) -> tuple[np.ndarray, np.ndarray]:
+    """Exact leg marginal values ``(K, m)`` and product opportunity costs ``(K, n)`` at the visits.
+
+    ``+inf`` where the seat (or one of the product's seats) is not there.
+    """
+    from rmkit.methods.shared.network_dp import flat_index, grid_strides, solve_network_dp
+
+    strides = grid_strides(network.capacities)
+    moves = np.concatenate([np.eye(network.n_legs, dtype=np.int64),
+                            np.asarray(network.incidence, dtype=np.int64).T])  # (m + n, m)
+    x = visits.state
+    here = flat_index(x, strides)  # (K,)
+    ok = np.all(x[:, None, :] >= moves[None, :, :], axis=2)  # (K, m + n)
+    there = np.where(ok, here[:, None] - moves @ strides, here[:, None])
+    wanted = np.unique(np.concatenate([here, there.ravel()]))
+    dp = solve_network_dp(network, demand, 0, keep_decisions=False, probe=wanted,
+                          max_memory_gb=max_memory_gb)
+    values = dp.probe_values  # (T, U): V_{t+1} at the probed states
+    rows = visits.period[:, None]
+    diff = values[rows, np.searchsorted(wanted, here)[:, None]] - values[
+        rows, np.searchsorted(wanted, there)]
+    diff[~ok] = np.inf
+    return diff[:, : network.n_legs], diff[:, network.n_legs :]
+
+
+def quoted_bid_prices(result: SolveResult, visits: Visits) -> np.ndarray:
+    """``(K, m)`` the bid prices a method's result quotes at each visited (period, state).
+
+    A table is looked up at ``(t, x_i)``; a static vector is the same everywhere (no re-solve).
+    """
+    m = visits.state.shape[1]
+    if "bid_price_table" in result:
+        table = np.asarray(result["bid_price_table"])
+        return table[visits.period[:, None] - result.period, visits.state, np.arange(m)[None, :]]
+    return np.broadcast_to(np.asarray(result.bid_prices, dtype=np.float64), (visits.size, m))
+
+
+def visit_weighted_errors(
+    visits: Visits,
+    incidence: np.ndarray,
+    exact_leg: np.ndarray,
+    exact_cost: np.ndarray,
+    method_leg: np.ndarray,
+    method_cost: np.ndarray | None = None,
+) -> dict[str, float]:
+    """Visit-weighted mean absolute and maximum errors (see the module docstring).
+
+    ``method_cost`` defaults to the sum of the method's leg bid prices over each product's legs.
+    """
+    a = np.asarray(incidence)
+    if method_cost is None:  # sum over the product's own legs only (+inf elsewhere must not leak)
+        method_cost = np.where(a[None, :, :] > 0, np.asarray(method_leg)[:, :, None], 0.0).sum(
+            axis=1)
+    leg_mask = visits.state >= 1
+    cost_mask = np.all(visits.state[:, :, None] >= a[None, :, :], axis=1)
+    out: dict[str, float] = {}
+    for label, exact, method, mask in (
+        ("bid_price", exact_leg, method_leg, leg_mask),
+        ("opportunity_cost", exact_cost, method_cost, cost_mask),
+    ):
+        with np.errstate(invalid="ignore"):
+            err = np.where(mask, np.abs(np.asarray(method) - np.asarray(exact)), 0.0)
+        if not mask.any():
+            out[f"{label}_error_mean"] = out[f"{label}_error_max"] = math.nan
+            continue
+        w = visits.weight[:, None] * mask
+        out[f"{label}_error_mean"] = float((w * err).sum() / w.sum())
+        out[f"{label}_error_max"] = float(err[mask].max())
+    return out
+
+
+def exact_bid_price_table(
+    visits: Visits, exact_leg: np.ndarray, network: Network, n_periods: int,
+    min_visits: int = MIN_TABLE_VISITS,
+) -> np.ndarray:
+    """``(T, C+1, m)`` visit-weighted mean exact bid price given period and the leg's seats left.
+
+    Averages ``m_i(t, x)`` over the visited states with ``x_i`` seats on leg i in period t; NaN
+    where the optimal policy goes fewer than ``min_visits`` times (too few to average over the
+    other legs' states), ``+inf`` at 0 seats and NaN above capacity (the :mod:`rmkit.results`
+    table conventions).
+    """
+    m = network.n_legs
+    width = network.max_capacity + 1
+    total = np.zeros((n_periods, width, m))
+    weight = np.zeros((n_periods, width, m))
+    legs = np.broadcast_to(np.arange(m), visits.state.shape)
+    periods = np.broadcast_to(visits.period[:, None], visits.state.shape)
+    w = np.broadcast_to(visits.weight[:, None], visits.state.shape)
+    finite = visits.state >= 1
+    idx = (periods[finite], visits.state[finite], legs[finite])
+    np.add.at(total, idx, (w * np.where(finite, exact_leg, 0.0))[finite])
+    np.add.at(weight, idx, w[finite])
+    enough = weight * visits.n_paths * n_periods >= min_visits - 1e-9
+    with np.errstate(invalid="ignore", divide="ignore"):
+        table = np.where(enough & (weight > 0), total / np.where(weight > 0, weight, 1.0), np.nan)
+    table[:, 0, :] = np.inf
+    for i, c in enumerate(network.capacities):
+        table[:, int(c) + 1 :, i] = np.nan
+    return table
+
+
+# ---------------------------------------------------------------- simulation
+def simulate_runs(
+    network: Network,
+    demand: DemandModel,
+    runs: Sequence[MethodRun],
+    *,
+    paths: int,
+    seed: int,
+    resolve: int,
+    progress: Callable[[str], None] | None = None,
+) -> None:
+    """Simulate the policy of every method that ran and gives one, on the same request streams."""
+    from rmkit.workflows.simulate import simulate
+
+    for run in runs:
+        if run.status != "ran" or run.result is None or not run.solver.tags.gives_bid_prices:
+            continue
+        if progress:
+            progress(f"simulating {run.name}")
+        # Solved once from the start: replay that result (no second solve); else re-solve.
+        policy = run.result if resolve <= 1 else run.solver
+        started = time.perf_counter()
+        try:
+            with _collect(run):
+                run.simulation = simulate(network, demand, policy, paths=paths, seed=seed,
+                                          resolve=resolve)
+        except (SolverError, InputError) as err:
+            run.status, run.reason = "failed", f"simulation: {err}"
+            continue
+        run.simulate_seconds = time.perf_counter() - started
+
+
+# ---------------------------------------------------------------- the comparison
+@dataclass
+class _Frame:
+    """Shared facts while the Dataset is assembled."""
+
+    network: Network
+    demand: DemandModel
+    paths: int
+    visits: Visits | None = None
+    exact_leg: np.ndarray | None = None
+    exact_cost: np.ndarray | None = None
+    errors_note: str = ""
+    best: str = ""
+    reference: tuple[str, str, float] = ("none", "", math.nan)
+    extra: dict[str, Any] = field(default_factory=dict)
+
+
+def compare(
+    network: Network,
+    demand: DemandModel,
+    *,
+    methods: Sequence[str] | str | None = None,
+    paths: int = DEFAULT_PATHS,
+    resolve: int = 0,
+    seed: int = 0,
+    settings: Mapping[str, Mapping[str, Any]] | None = None,
+    visit_paths: int = DEFAULT_VISIT_PATHS,
+    with_exact: bool = True,
+    scenario: str = "",
+    progress: Callable[[str], None] | None = None,
+) -> xr.Dataset:
+    """Run methods on one scenario and compare them value by value; see the module docstring.
+
+    Parameters
+    ----------
+    methods
+        Method names (a list or ``"a,b,c"``); default every registered method. Methods that cannot
+        run on this scenario are kept in the result with ``status = "skipped"`` and the reason.
+    paths, seed
+        Simulated request streams (the same for every policy) and their seed; solvers get
+        ``seed`` too.
+    resolve
+        Re-solves of each policy at equally spaced periods (0: solve once at the start).
+    settings
+        Method name -> its settings.
+    visit_paths
+        How many of the streams estimate the optimal policy's visit distribution.
+    with_exact
+        When ``exact`` is not among ``methods`` but fits, still solve it as the yardstick of the
+        errors and gaps (it is then not a row of the result).
+
+    Returns
+    -------
+    xarray.Dataset
+        Dims ``method``, ``leg``, ``product``, ``period``, ``capacity``, ``path`` and ``visit``;
+        variables are listed in :data:`VARIABLES`. Attrs: scenario, seed, paths, resolve,
+        parameters of every method (JSON), reference, best policy, rmkit version.
+    """
+    from rmkit.methods.base import non_negative_int, positive_int
+
+    check_compatible(network, demand)
+    for name, value, rule, ok in (
+        ("paths", paths, "a whole number >= 1", positive_int),
+        ("seed", seed, "a whole number >= 0", non_negative_int),
+        ("resolve", resolve, "a whole number >= 0", non_negative_int),
+        ("visit_paths", visit_paths, "a whole number >= 1", positive_int),
+    ):
+        if not ok(value):
+            from rmkit.errors import param_error
+
+            raise param_error("compare", name, rule, value)
+    names = select_methods(methods)
+    runs = run_methods(network, demand, names, seed=seed, settings=settings, progress=progress)
+    for run in runs:
+        if run.result is not None:
+            run.check = check_allocation(network, run.result)
+    simulate_runs(network, demand, runs, paths=paths, seed=seed, resolve=resolve,
+                  progress=progress)
+    for run in runs:
+        if run.simulation is not None:
+            verdict = check_paths(network, run.simulation)
+            run.check = verdict if run.check in ("", "ok") else run.check
+    for run in runs:
+        if run.check not in ("", "ok"):
+            warnings.warn(f"{run.name}: failed the independent check: {run.check}",
+                          RuntimeWarning, stacklevel=2)
+    frame = _Frame(network, demand, paths)
+    exact = next((r for r in runs if r.status == "ran" and r.kind == "optimum"), None)
+    if exact is None and with_exact:
+        exact = _background_exact(network, demand, seed, progress)
+    if exact is not None:
+        if progress:
+            progress("exact values where the optimal policy goes")
+        _exact_errors(frame, exact, min(visit_paths, paths), seed)
+    frame.reference = _reference([*runs, exact] if exact is not None else runs)
+    frame.best = _best_policy(runs)
+    ds = _assemble(frame, runs)
+    ds.attrs.update(
+        {
+            "scenario": scenario or network.name,
+            "seed": int(seed),
+            "paths": int(paths),
+            "resolve": int(resolve),
+            "visit_paths": int(frame.visits.n_paths) if frame.visits is not None else 0,
+            "methods": json.dumps(names),
+            "parameters": json.dumps(
+                {r.name: r.solver.get_params() for r in runs if r.solver is not None},
+                sort_keys=True, default=str),
+            "reference_kind": frame.reference[0],
+            "reference_method": frame.reference[1],
+            "reference_value": float(frame.reference[2]),
+            "best_policy": frame.best,
+            "errors": frame.errors_note,
+            "confidence": 0.95,
+            "rmkit_version": __version__,
+        }
+    )
+    return ds
+
+
+def _exact_errors(frame: _Frame, exact: MethodRun, visit_paths: int, seed: int) -> None:
+    from rmkit.errors import ProblemTooLargeError
+
+    net, dem = frame.network, frame.demand
+    streams = dem.sample_streams(visit_paths, seed)
+    try:
+        visits = optimal_visits(net, dem, exact.result, streams)
+        leg, cost = exact_values_at(net, dem, visits)
+    except (ProblemTooLargeError, SolverError) as err:
+        frame.errors_note = f"not computed: {err}"
+        return
+    frame.visits, frame.exact_leg, frame.exact_cost = visits, leg, cost
+    frame.errors_note = (
+        f"visit-weighted over {visits.size} (period, state) pairs the optimal policy visits on "
+        f"{visit_paths} simulated paths; static bid prices as solved at period 0"
+    )
+
+
+def _background_exact(network: Network, demand: DemandModel, seed: int,
+                      progress: Callable[[str], None] | None) -> MethodRun | None:
+    """The exact DP as the yardstick when it fits but was not asked for (not in the table)."""
+    from rmkit.errors import ProblemTooLargeError
+    from rmkit.methods.base import get_solver
+
+    solver = get_solver("exact")
+    if solver.accepts(network, demand) is not None:
+        return None
+    if progress:
+        progress("solving exact (the yardstick)")
+    try:
+        result = solver.solve(network, demand, seed=seed)
+    except (ProblemTooLargeError, SolverError):
+        return None
+    return MethodRun(name="exact", kind="optimum", status="ran", solver=solver, result=result)
+
+
+def _reference(runs: Sequence[MethodRun]) -> tuple[str, str, float]:
+    """(kind, method, value) the revenue gaps are measured against."""
+    ran = [r for r in runs if r.status == "ran" and r.result is not None]
+    for r in ran:
+        if r.kind == "optimum":
+            return "optimum", r.name, r.result.value
+    bounds = [r for r in ran if r.kind == "upper bound" and math.isfinite(r.result.value)]
+    if bounds:
+        best = min(bounds, key=lambda r: r.result.value)
+        return "best bound", best.name, best.result.value
+    return "none", "", math.nan
+
+
+def _best_policy(runs: Sequence[MethodRun]) -> str:
+    simulated = [r for r in runs if r.simulation is not None]
+    if not simulated:
+        return ""
+    return max(simulated, key=lambda r: float(r.simulation["revenue_mean"])).name
+
+
+#: Variables of the comparison Dataset: name -> (dims, units, description).
+VARIABLES: dict[str, tuple[tuple[str, ...], str, str]] = {
+    "kind": (("method",), "", "optimum, upper bound or heuristic"),
+    "status": (("method",), "", "ran, skipped or failed"),
+    "reason": (("method",), "", "why a method was skipped or failed"),
+    "check": (("method",), "", "independent re-check of allocations and simulated paths"),
+    "warning": (("method",), "", "warnings raised while solving or simulating, counted"),
+    "value": (("method",), "currency", "optimum, upper bound or the method's own estimate"),
+    "value_stderr": (("method",), "currency", "standard error of a sampled value"),
+    "bid_price": (("method", "leg"), "currency per seat", "bid prices at period 0, full capacity"),
+    "bid_price_table": (("method", "period", "capacity", "leg"), "currency per seat",
+                        "bid price by period and seats left on the leg (exact: visit-weighted "
+                        "mean over the states the optimal policy visits)"),
+    "revenue": (("method", "path"), "currency", "simulated revenue per path"),
+    "revenue_mean": (("method",), "currency", "mean simulated revenue"),
+    "revenue_stderr": (("method",), "currency", "standard error of the mean revenue"),
+    "revenue_ci_low": (("method",), "currency", "95% confidence interval, low end"),
+    "revenue_ci_high": (("method",), "currency", "95% confidence interval, high end"),
+    "difference_mean": (("method",), "currency", "mean paired revenue difference vs best policy"),
+    "difference_stderr": (("method",), "currency", "paired standard error of the difference"),
+    "difference_ci_low": (("method",), "currency", "95% interval of the difference, low end"),
+    "difference_ci_high": (("method",), "currency", "95% interval of the difference, high end"),
+    "gap_percent": (("method",), "%", "(reference - mean revenue) / reference x 100"),
+    "bid_price_error_mean": (("method",), "currency per seat", "visit-weighted mean abs error"),
+    "bid_price_error_max": (("method",), "currency per seat", "max abs error over visits"),
+    "opportunity_cost_error_mean": (("method",), "currency", "visit-weighted mean abs error"),
+    "opportunity_cost_error_max": (("method",), "currency", "max abs error over visits"),
+    "load_factor_mean": (("method", "leg"), "1", "mean seats sold / capacity"),
+    "solve_seconds": (("method",), "s", "wall time of the solve from period 0"),
+    "simulate_seconds": (("method",), "s", "wall time of the simulation (with re-solves)"),
+}
+
+
+def _method_dataset(frame: _Frame, run: MethodRun, best: MethodRun | None, ref: float):
+    import xarray as xr
+
+    from rmkit.workflows.simulate import summarize
+
+    net, n_t = frame.network, frame.demand.n_periods
+    m, width = net.n_legs, net.max_capacity + 1
+    nan = math.nan
+    res, sim = run.result, run.simulation
+    data: dict[str, Any] = {
+        "kind": run.kind, "status": run.status, "reason": run.reason, "check": run.check,
+        "warning": run.note(),
+        "value": res.value if res is not None else nan,
+        "value_stderr": (res.stderr if res is not None and res.stderr is not None else nan),
+        "bid_price": np.full(m, nan),
+        "bid_price_table": np.full((n_t, width, m), nan),
+        "revenue": np.full(frame.paths, nan),
+        "load_factor_mean": np.full(m, nan),
+        "solve_seconds": res.seconds if res is not None else nan,
+        "simulate_seconds": run.simulate_seconds,
+    }
+    for name in ("revenue_mean", "revenue_stderr", "revenue_ci_low", "revenue_ci_high",
+                 "difference_mean", "difference_stderr", "difference_ci_low",
+                 "difference_ci_high", "gap_percent", *ERROR_NAMES):
+        data[name] = nan
+    if res is not None and run.solver.tags.gives_bid_prices:
+        if "bid_price_table" in res:
+            data["bid_price_table"] = np.asarray(res["bid_price_table"], dtype=np.float64)
+        data["bid_price"] = np.asarray(res.bid_prices, dtype=np.float64)
+    if run.kind == "optimum" and frame.visits is not None:
+        data["bid_price_table"] = exact_bid_price_table(frame.visits, frame.exact_leg, net, n_t)
+        start = frame.visits.period == 0
+        data["bid_price"] = frame.exact_leg[np.flatnonzero(start)[0]]
+    if sim is not None:
+        revenue = sim["revenue"].values
+        data["revenue"] = revenue
+        data["load_factor_mean"] = sim["load_factor_mean"].values
+        for name in ("revenue_mean", "revenue_stderr", "revenue_ci_low", "revenue_ci_high"):
+            data[name] = float(sim[name])
+        if best is not None:
+            mean, se, lo, hi = summarize(revenue - best.simulation["revenue"].values)
+            data.update(difference_mean=mean, difference_stderr=se, difference_ci_low=lo,
+                        difference_ci_high=hi)
+        if math.isfinite(ref) and ref:
+            data["gap_percent"] = 100.0 * (ref - data["revenue_mean"]) / ref
+    if frame.visits is not None and res is not None and run.solver.tags.gives_bid_prices:
+        if run.kind == "optimum":
+            errors = visit_weighted_errors(frame.visits, net.incidence, frame.exact_leg,
+                                           frame.exact_cost, frame.exact_leg, frame.exact_cost)
+        else:
+            errors = visit_weighted_errors(frame.visits, net.incidence, frame.exact_leg,
+                                           frame.exact_cost, quoted_bid_prices(res, frame.visits))
+        data.update(errors)
+    data_vars = {}
+    for name, (dims, units, description) in VARIABLES.items():
+        value = data[name]
+        if isinstance(value, str):
+            value = np.array(value, dtype=object)
+        data_vars[name] = xr.Variable(dims[1:], value, attrs={"units": units,
+                                                              "description": description}
+                                      if units else {"description": description})
+    return xr.Dataset(data_vars, coords=_coords(net, n_t, frame.paths))
+
+
+def _coords(network: Network, n_periods: int, paths: int) -> dict[str, Any]:
+    return {
+        "leg": np.array(network.leg_ids, dtype=object),
+        "product": np.array(network.product_ids, dtype=object),
+        "period": np.arange(n_periods),
+        "capacity": np.arange(network.max_capacity + 1),
+        "path": np.arange(paths),
+    }
+
+
+def _assemble(frame: _Frame, runs: Sequence[MethodRun]):
+    import xarray as xr
+
+    best = next((r for r in runs if r.name == frame.best), None)
+    parts = [_method_dataset(frame, r, best, frame.reference[2]) for r in runs]
+    ds = xr.concat(parts, dim="method", join="exact", data_vars="all", coords="minimal",
+                   compat="identical")
+    ds = ds.assign_coords(method=np.array([r.name for r in runs], dtype=object))
+    if frame.visits is not None:
+        v = frame.visits
+        ds["visit_period"] = ("visit", v.period.astype(np.int32),
+                              {"description": "period of a visited state"})
+        ds["visit_capacity"] = (("visit", "leg"), v.state.astype(np.int32),
+                                {"units": "seats", "description": "seats left"})
+        ds["visit_weight"] = ("visit", v.weight, {"description": "share of (path, period) pairs"})
+        ds["exact_bid_price"] = (("visit", "leg"), v_inf_to_nan(frame.exact_leg),
+                                 {"units": "currency per seat",
+                                  "description": "V_{t+1}(x) - V_{t+1}(x - e_i); NaN at 0 seats"})
+        ds["exact_opportunity_cost"] = (("visit", "product"), v_inf_to_nan(frame.exact_cost),
+                                        {"units": "currency", "description":
+                                         "V_{t+1}(x) - V_{t+1}(x - A_j); NaN where not sellable"})
+        ds["exact_bid_price_table"] = (
+            ("period", "capacity", "leg"),
+            exact_bid_price_table(v, frame.exact_leg, frame.network, frame.demand.n_periods),
+            {"units": "currency per seat", "description": "exact bid price by period and seats "
+             "left on the leg: visit-weighted mean over the states the optimal policy visits"})
+    for name, var in ds.data_vars.items():  # compressed when written to NetCDF
+        if var.ndim and var.dtype.kind in "fi":
+            ds[name].encoding.update({"zlib": True, "complevel": 4})
+    return ds
+
+
+def v_inf_to_nan(a: np.ndarray) -> np.ndarray:
+    """Infinite exact differences (no seat there) stored as NaN in the per-visit arrays."""
+    return np.where(np.isfinite(a), a, np.nan)
+
+
+# ---------------------------------------------------------------- the ranked table
+def ranked(ds: xr.Dataset) -> list[dict[str, Any]]:
+    """One row per method: simulated ones by mean revenue (best first), then bounds, then skipped."""
+    rows = []
+    for q, name in enumerate(ds.method.values.tolist()):
+        d = ds.isel(method=q)
+        row = {"method": name, "kind": str(d["kind"].values), "status": str(d["status"].values),
+               "reason": str(d["reason"].values), "check": str(d["check"].values),
+               "warning": str(d["warning"].values)}
+        for var in ("value", "value_stderr", "revenue_mean", "revenue_stderr", "revenue_ci_low",
+                    "revenue_ci_high", "difference_mean", "difference_stderr", "gap_percent",
+                    *ERROR_NAMES, "solve_seconds", "simulate_seconds"):
+            v = float(d[var].values)
+            row[var] = v if math.isfinite(v) else None
+        rows.append(row)
+
+    def order(row: dict[str, Any]) -> tuple[int, float]:
+        if row["status"] != "ran":
+            return (3, 0.0)
+        if row["revenue_mean"] is not None:
+            return (0, -row["revenue_mean"])
+        return (1, row["value"] if row["value"] is not None else math.inf)
+
+    rows.sort(key=order)
+    for rank, row in enumerate(rows, start=1):
+        row["rank"] = rank if row["revenue_mean"] is not None else None
+    return rows

@@ -1,0 +1,550 @@
+"""The policy simulator: booking controls replayed on sampled request streams.
+
+Every policy is replayed on the same ``(paths, T)`` request streams drawn from the demand model's
+seeded sampler (:meth:`~rmkit.model.demand.DemandModel.sample_streams`), so two policies simulated with
+the same seed see exactly the same requests: their per-path revenue differences are *paired* and
+their variance is smaller than that of two independent estimates (common random numbers).
+
+Statistics
+----------
+For per-path revenues ``R_1 .. R_n`` the estimate is the mean ``Rbar``, its standard error
+``s / sqrt(n)`` with ``s`` the sample standard deviation, and the 95% confidence interval
+``Rbar +- t_{0.975, n-1} s / sqrt(n)`` (Student t). Two policies a, b on the same paths are compared
+through ``D_k = R_ak - R_bk``: mean ``Dbar``, paired standard error ``s_D / sqrt(n)``; the unpaired
+standard error ``sqrt(s_a^2 + s_b^2) / sqrt(n)``, which ignores the pairing, is reported beside it
+for contrast. ``Var(D) = s_a^2 + s_b^2 - 2 cov(a, b)``, so the paired one is smaller whenever the
+two revenues are positively correlated, as they are when both face the same requests.
+
+Re-optimisation
+---------------
+``resolve=K`` recomputes the policy's inputs at the K periods ``floor(k T / K)``, k = 0..K-1 (the
+first period and every T/K periods after it), each from the path's seats left and the demand to
+come from that period. Paths with the same seats left share one solve. ``resolve=0`` (or 1) solves
+once, at period 0 from full capacity. ``resolve_every_sale`` also recomputes a ``bid_price`` or
+``nested`` control right after each sale of a path; see :mod:`rmkit.workflows.policies` for what re-solving
+means for each control type (a no-op for ``table``, ``exact`` and ``fcfs``).
+
+Each solve gets a seed derived from (``seed``, period, seats left), so a path's outcome does not
+depend on how many other paths run beside it: the first k paths of a long run equal a short run.
+
+>>> from rmkit import DemandModel, Network
+>>> net = Network.build(legs=[("L", 1)], products=[("P", 10.0, ["L"])])
+>>> demand = DemandModel(np.array([[0.5], [0.5]]))
+>>> demand.sample_streams(4, seed=0).tolist()  # requested product per period, -1 = none
+[[-1, 0], [0, 0], [-1, -1], [-1, -1]]
+>>> ds = simulate(net, demand, "fcfs", paths=4, seed=0)
+>>> ds.revenue.values.tolist(), ds.rejected.values.ravel().tolist()  # one seat: path 1 refuses one
+([10.0, 10.0, 0.0, 0.0], [0, 1, 0, 0])
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import time
+import warnings
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from rmkit._version import __version__
+from rmkit.errors import InputError, ProblemTooLargeError
+from rmkit.model.demand import DemandModel, check_compatible
+from rmkit.model.network import Network
+from rmkit.workflows.policies import (
+    ADAPTIVE_CONTROLS,
+    SALE_SENSITIVE_CONTROLS,
+    FixedPolicy,
+    PolicySource,
+    control_arrays,
+    make_policy,
+)
+
+CONFIDENCE = 0.95
+#: Refuse runs whose per-path arrays would need more memory than this (bytes).
+DEFAULT_MAX_BYTES = 4 * 2**30
+
+
+# ---------------------------------------------------------------- statistics
+def summarize(values: np.ndarray) -> tuple[float, float, float, float]:
+    """Mean, standard error and 95% Student-t confidence interval of per-path values."""
+    from scipy.stats import t as student_t
+
+    v = np.asarray(values, dtype=np.float64)
+    n = v.size
+    mean = float(v.mean())
+    if n < 2:
+        return mean, math.nan, math.nan, math.nan
+    se = float(v.std(ddof=1) / math.sqrt(n))
+    half = float(student_t.ppf(0.5 + CONFIDENCE / 2, n - 1)) * se
+    return mean, se, mean - half, mean + half
+
+
+# ---------------------------------------------------------------- schedule
+def resolve_periods(n_periods: int, resolve: int) -> np.ndarray:
+    """Periods ``floor(k T / K)``, k = 0..K-1, at which the policy is recomputed (K >= 1)."""
+    k = max(int(resolve), 1)
+    return np.unique(np.arange(k, dtype=np.int64) * n_periods // k)
+
+
+def solve_seed(seed: int, period: int, capacity: np.ndarray) -> int:
+    """A solve's seed as a function of the run's seed and the state alone."""
+    entropy = [int(seed), int(period), *(int(v) for v in capacity)]
+    return int(np.random.SeedSequence(entropy).generate_state(1, np.uint32)[0])
+
+
+# ---------------------------------------------------------------- engine
+@dataclass
+class Outcome:
+    """Per-path results of one policy, plus how the run went."""
+
+    label: str
+    control: str
+    parameters: dict[str, Any]
+    revenue: np.ndarray
+    accepted: np.ndarray
+    rejected: np.ndarray
+    seats_left: np.ndarray
+    solves: int = 0
+    solve_seconds: float = 0.0
+    seconds: float = 0.0
+    every_sale: bool = False
+    resolve_periods: list[int] = field(default_factory=list)
+    statuses: dict[str, int] = field(default_factory=dict)
+
+
+@dataclass
+class _Book:
+    """Mutable per-path state the kernels update in place."""
+
+    seats: np.ndarray
+    revenue: np.ndarray
+    accepted: np.ndarray
+    rejected: np.ndarray
+    sold: np.ndarray
+    next_period: np.ndarray
+
+    @classmethod
+    def start(cls, network: Network, n_paths: int) -> _Book:
+        m, n = network.n_legs, network.n_products
+        return cls(
+            seats=np.tile(np.asarray(network.capacities, dtype=np.int64), (n_paths, 1)),
+            revenue=np.zeros(n_paths),
+            accepted=np.zeros((n_paths, n), dtype=np.int64),
+            rejected=np.zeros((n_paths, n), dtype=np.int64),
+            sold=np.zeros((n_paths, m, 0), dtype=np.int64),
+            next_period=np.zeros(n_paths, dtype=np.int64),
+        )
+
+    def room_for_buckets(self, n_buckets: int) -> None:
+        if self.sold.shape[2] < n_buckets:
+            grown = np.zeros(self.sold.shape[:2] + (n_buckets,), dtype=np.int64)
+            grown[:, :, : self.sold.shape[2]] = self.sold
+            self.sold = grown
+
+
+def _incidence_lists(network: Network) -> tuple[np.ndarray, np.ndarray]:
+    """CSR form of the incidence: product j uses legs ``leg_list[leg_ptr[j]:leg_ptr[j+1]]``."""
+    a = np.asarray(network.incidence)
+    leg_list = np.ascontiguousarray(np.nonzero(a.T)[1], dtype=np.int64)
+    leg_ptr = np.zeros(network.n_products + 1, dtype=np.int64)
+    leg_ptr[1:] = np.cumsum(a.sum(axis=0))
+    return leg_ptr, leg_list
+
+
+def _groups(book: _Book, pending: np.ndarray) -> list[tuple[int, np.ndarray, np.ndarray]]:
+    """Pending paths grouped by (next period, seats left): one solve per distinct state.
+
+    Groups come in lexicographic order of the state and list their paths in ascending order.
+    """
+    keys = np.column_stack([book.next_period[pending], book.seats[pending]])
+    order = np.lexsort(keys.T[::-1])  # integer sorts; much faster than np.unique(axis=0)
+    ordered = keys[order]
+    starts = np.flatnonzero(np.any(ordered[1:] != ordered[:-1], axis=1)) + 1
+    bounds = np.concatenate([[0], starts, [order.size]])
+    return [
+        (int(ordered[a, 0]), ordered[a, 1:], pending[order[a:b]])
+        for a, b in zip(bounds[:-1], bounds[1:], strict=True)
+    ]
+
+
+def replay(
+    network: Network,
+    demand: DemandModel,
+    source: PolicySource,
+    streams: np.ndarray,
+    *,
+    seed: int,
+    resolve: int = 0,
+    resolve_every_sale: bool = False,
+) -> Outcome:
+    """Run one policy over given request streams (the engine behind :func:`simulate`)."""
+    from rmkit.kernels.replay import run_requests
+
+    started = time.perf_counter()
+    n_paths, n_periods = streams.shape
+    fares = np.ascontiguousarray(network.fares, dtype=np.float64)
+    leg_ptr, leg_list = _incidence_lists(network)
+    wants_resolves = (resolve > 1 and source.control in ADAPTIVE_CONTROLS) or (
+        resolve_every_sale and source.control in SALE_SENSITIVE_CONTROLS)
+    if isinstance(source, FixedPolicy) and wants_resolves:
+        raise InputError(
+            f"resolve: policy {source.label!r} is a fixed result and cannot be re-solved; pass "
+            "the method (its name or a Solver) to re-solve it, or drop the re-solves"
+        )
+    points = resolve_periods(n_periods, resolve) if source.adaptive else np.zeros(1, np.int64)
+    every_sale = (bool(resolve_every_sale) and source.adaptive
+                  and source.control in SALE_SENSITIVE_CONTROLS)
+    book = _Book.start(network, n_paths)
+    solves, solve_seconds = 0, 0.0
+    statuses: dict[str, int] = {}
+    # control arrays by state; kept across rounds only with every-sale re-solves, where paths
+    # reach the same (period, seats left) in different rounds and small controls repeat
+    solved: dict[tuple[int, bytes], Any] = {}
+    pending = np.arange(n_paths, dtype=np.int64)
+    while pending.size:
+        for period, seats, idx in _groups(book, pending):
+            key = (period, seats.tobytes())
+            if key not in solved:
+                t_solve = time.perf_counter()
+                result = source.control_at(network, demand, period, seats,
+                                           solve_seed(seed, period, seats))
+                solved[key] = control_arrays(source.control, result, network, seats)
+                solve_seconds += time.perf_counter() - t_solve
+                if result is not None:
+                    solves += 1
+                    statuses[result.status] = statuses.get(result.status, 0) + 1
+            arrays = solved[key] if every_sale else solved.pop(key)
+            if arrays.n_buckets:
+                book.room_for_buckets(arrays.n_buckets)
+                book.sold[idx] = 0  # limits count the sales made since they were set
+            nxt = np.searchsorted(points, period, side="right")
+            stop = int(points[nxt]) if nxt < points.size else n_periods
+            run_requests(streams, idx, stop, every_sale, arrays.code, fares, leg_ptr, leg_list,
+                         arrays.t0, arrays.bid, arrays.table, arrays.limit, arrays.bucket,
+                         arrays.bits, arrays.strides, book.seats, book.revenue, book.accepted,
+                         book.rejected, book.sold, book.next_period)
+        pending = np.flatnonzero(book.next_period < n_periods)
+    _warn_inexact(source.label, statuses, solves)
+    return Outcome(
+        label=source.label,
+        control=source.control,
+        parameters=dict(source.parameters),
+        revenue=book.revenue,
+        accepted=book.accepted,
+        rejected=book.rejected,
+        seats_left=book.seats,
+        solves=solves,
+        solve_seconds=solve_seconds,
+        seconds=time.perf_counter() - started,
+        every_sale=every_sale,
+        resolve_periods=[int(p) for p in points],
+        statuses=statuses,
+    )
+
+
+def _warn_inexact(label: str, statuses: dict[str, int], solves: int) -> None:
+    inexact = {s: c for s, c in statuses.items() if s != "optimal"}
+    if inexact:
+        detail = ", ".join(f"{c} {s!r}" for s, c in sorted(inexact.items()))
+        warnings.warn(
+            f"{label}: {sum(inexact.values())} of {solves} solves were not optimal ({detail}); "
+            "their controls were simulated as returned",
+            RuntimeWarning,
+            stacklevel=3,
+        )
+
+
+# ---------------------------------------------------------------- checks
+def _check_run(
+    network: Network, demand: DemandModel, paths: Any, seed: Any, resolve: Any, max_bytes: int
+) -> None:
+    from rmkit.errors import param_error
+    from rmkit.methods.base import non_negative_int, positive_int
+
+    check_compatible(network, demand)
+    if not positive_int(paths):
+        raise param_error("simulate", "paths", "a whole number >= 1", paths)
+    if not non_negative_int(seed):
+        raise param_error("simulate", "seed", "a whole number >= 0", seed)
+    if not non_negative_int(resolve):
+        raise param_error("simulate", "resolve", "a whole number >= 0", resolve)
+    if resolve > demand.n_periods:
+        raise param_error(
+            "simulate", "resolve", f"at most the number of periods ({demand.n_periods})", resolve
+        )
+    per_path = demand.n_periods * 4 + 8 * (3 * network.n_products + 4 * network.n_legs + 2)
+    need = int(paths) * per_path * 2  # streams and books, plus the draw's uniform numbers
+    if need > max_bytes:
+        raise ProblemTooLargeError(
+            f"paths: {paths} paths x {demand.n_periods} periods need about {need / 2**30:.1f} "
+            f"GiB, above the {max_bytes / 2**30:.1f} GiB limit; use at most "
+            f"{max(1, max_bytes // (2 * per_path))} paths per run and combine runs with different "
+            "seeds"
+        )
+
+
+# ---------------------------------------------------------------- datasets
+def _path_dataset(outcome: Outcome, network: Network):
+    import xarray as xr
+
+    caps = np.asarray(network.capacities, dtype=np.float64)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        load = np.where(caps > 0, (caps - outcome.seats_left) / np.where(caps > 0, caps, 1), np.nan)
+    mean, se, lo, hi = summarize(outcome.revenue)
+    ds = xr.Dataset(
+        {
+            "revenue": (("path",), outcome.revenue, {"units": "currency"}),
+            "accepted": (("path", "product"), outcome.accepted, {"units": "requests"}),
+            "rejected": (("path", "product"), outcome.rejected, {"units": "requests"}),
+            "seats_left": (("path", "leg"), outcome.seats_left, {"units": "seats"}),
+            "load_factor": (("path", "leg"), load, {"units": "1",
+                                                    "description": "seats sold / capacity"}),
+            "revenue_mean": ((), mean, {"units": "currency"}),
+            "revenue_stderr": ((), se, {"units": "currency"}),
+            "revenue_ci_low": ((), lo, {"units": "currency", "confidence": CONFIDENCE}),
+            "revenue_ci_high": ((), hi, {"units": "currency", "confidence": CONFIDENCE}),
+            "load_factor_mean": (("leg",), np.nanmean(load, axis=0) if load.size else load,
+                                 {"units": "1"}),
+        },
+        coords={
+            "path": np.arange(outcome.revenue.size),
+            "product": np.array(network.product_ids, dtype=object),
+            "leg": np.array(network.leg_ids, dtype=object),
+        },
+    )
+    return ds
+
+
+def _run_attrs(outcome: Outcome, seed: int, paths: int, resolve: int, network: Network) -> dict:
+    return {
+        "policy": outcome.label,
+        "control": outcome.control,
+        "seed": int(seed),
+        "paths": int(paths),
+        "resolves": int(resolve),
+        "resolve_periods": json.dumps(outcome.resolve_periods),
+        "resolve_every_sale": int(outcome.every_sale),
+        "solves": int(outcome.solves),
+        "solve_statuses": json.dumps(outcome.statuses, sort_keys=True),
+        "parameters": json.dumps(outcome.parameters, sort_keys=True, default=str),
+        "network": network.name,
+        "seconds": float(outcome.seconds),
+        "solve_seconds": float(outcome.solve_seconds),
+        "confidence": CONFIDENCE,
+        "rmkit_version": __version__,
+    }
+
+
+def simulate(
+    network: Network,
+    demand: DemandModel,
+    policy: Any,
+    *,
+    paths: int,
+    seed: int,
+    resolve: int = 0,
+    resolve_every_sale: bool = False,
+    params: Mapping[str, Any] | None = None,
+    max_bytes: int = DEFAULT_MAX_BYTES,
+):
+    """Simulate one booking policy on ``paths`` request streams drawn with ``seed``.
+
+    Parameters
+    ----------
+    network, demand
+        The problem.
+    policy
+        A method name (``"fcfs"`` or any registered method with a control), a
+        :class:`~rmkit.methods.base.Solver`, a :class:`~rmkit.results.SolveResult` solved from period 0
+        (applied as is: asking to re-solve it is an error) or a :mod:`rmkit.workflows.policies` source.
+    paths, seed
+        Number of sample paths and the seed of their request streams.
+    resolve
+        Number of equally spaced recomputations (0 or 1: solve once at the start).
+    resolve_every_sale
+        Also recompute ``bid_price`` and ``nested`` controls after every sale of a path.
+    params
+        Settings of the method when ``policy`` is a name.
+
+    Returns
+    -------
+    xarray.Dataset
+        ``revenue`` (path), ``accepted`` and ``rejected`` (path, product), ``seats_left`` and
+        ``load_factor`` (path, leg), the summary ``revenue_mean``, ``revenue_stderr``,
+        ``revenue_ci_low``, ``revenue_ci_high`` and ``load_factor_mean`` (leg); attrs record the
+        policy, seed, paths, resolves, number of solves, parameters (JSON) and rmkit version.
+    """
+    _check_run(network, demand, paths, seed, resolve, max_bytes)
+    source = make_policy(policy, dict(params or {}))
+    streams = demand.sample_streams(int(paths), int(seed))
+    outcome = replay(network, demand, source, streams, seed=int(seed), resolve=int(resolve),
+                     resolve_every_sale=resolve_every_sale)
+    ds = _path_dataset(outcome, network)
+    ds.attrs.update(_run_attrs(outcome, seed, paths, resolve, network))
+    return ds
+
+
+# ---------------------------------------------------------------- comparison
+def _labelled(policies: Sequence[Any] | Mapping[str, Any]) -> list[tuple[str | None, Any]]:
+    if isinstance(policies, Mapping):
+        return [(str(k), v) for k, v in policies.items()]
+    if isinstance(policies, (str, bytes)):
+        raise InputError("policies: give a list of policies (two or more), not one name")
+    return [(None, p) for p in policies]
+
+
+def _bound_value(bound: Any, network: Network, demand: DemandModel, seed: int
+                 ) -> tuple[float, float, str]:
+    """(value, standard error, source) of the upper bound or optimum to measure gaps against."""
+    from rmkit.methods.base import get_solver
+    from rmkit.results import SolveResult
+
+    if isinstance(bound, str):
+        solver = get_solver(bound)
+        if not (solver.tags.exact or solver.tags.upper_bound):
+            raise InputError(f"bound: {bound!r} is a heuristic, not an upper bound or optimum")
+        bound = solver.solve(network, demand, seed=seed)
+    if isinstance(bound, SolveResult):
+        se = bound.stderr
+        return bound.value, 0.0 if se is None else float(se), bound.method
+    try:
+        value = float(bound)
+    except (TypeError, ValueError):
+        value = math.nan
+    if not math.isfinite(value):
+        raise InputError(f"bound: must be a finite number, a method name or a result, got {bound!r}")
+    return value, 0.0, "given"
+
+
+def compare_policies(
+    network: Network,
+    demand: DemandModel,
+    policies: Sequence[Any] | Mapping[str, Any],
+    *,
+    paths: int,
+    seed: int,
+    resolve: int = 0,
+    resolve_every_sale: bool = False,
+    params: Mapping[str, Mapping[str, Any]] | None = None,
+    bound: Any = None,
+    max_bytes: int = DEFAULT_MAX_BYTES,
+):
+    """Simulate two or more policies on the same request streams and compare them in pairs.
+
+    Parameters
+    ----------
+    policies
+        A list of policies (as for :func:`simulate`; labelled by method name) or a mapping
+        label -> policy.
+    params
+        label -> settings, for policies given by name.
+    bound
+        Optional upper bound or optimum for the gaps: a number, a method name (``"exact"``,
+        ``"lr"``, ``"dlp"``, solved from the start) or a result.
+
+    Returns
+    -------
+    xarray.Dataset
+        Dims ``policy``, ``versus`` (the same labels), ``path``, ``product``, ``leg``: per-path
+        ``revenue`` and counts by policy, the summary by policy, and for every pair
+        ``difference_mean`` (policy minus versus), its paired ``difference_stderr`` and 95%
+        interval ``difference_ci_low`` / ``difference_ci_high``, and the unpaired
+        ``difference_stderr_unpaired`` for contrast. With a bound: ``bound``, ``gap`` (bound minus
+        mean revenue), ``gap_percent`` and the gap's interval.
+    """
+    import xarray as xr
+
+    items = _labelled(policies)
+    if len(items) < 2:
+        raise InputError(f"policies: compare needs two or more policies, got {len(items)}")
+    _check_run(network, demand, paths, seed, resolve, max_bytes)
+    params = dict(params or {})
+    sources = []
+    for label, spec in items:
+        key = label if label is not None else (spec if isinstance(spec, str) else None)
+        source = make_policy(spec, dict(params.get(key, {})) if key is not None else None)
+        if label is not None:
+            source.label = label
+        sources.append(source)
+    labels = [s.label for s in sources]
+    if len(set(labels)) != len(labels):
+        raise InputError(f"policies: labels must be unique, got {labels}; pass a mapping")
+    unknown = sorted(set(params) - set(labels))
+    if unknown:
+        raise InputError(f"params: no policy labelled {unknown[0]!r}; labels: {', '.join(labels)}")
+    streams = demand.sample_streams(int(paths), int(seed))
+    outcomes = [
+        replay(network, demand, s, streams, seed=int(seed), resolve=int(resolve),
+               resolve_every_sale=resolve_every_sale)
+        for s in sources
+    ]
+    per_policy = [_path_dataset(o, network) for o in outcomes]
+    ds = xr.concat(per_policy, dim="policy", join="exact")
+    ds = ds.assign_coords(policy=np.array(labels, dtype=object))
+    ds["control"] = ("policy", np.array([o.control for o in outcomes], dtype=object))
+    ds["parameters"] = (
+        "policy",
+        np.array([json.dumps(o.parameters, sort_keys=True, default=str) for o in outcomes],
+                 dtype=object),
+    )
+    ds["solves"] = ("policy", np.array([o.solves for o in outcomes], dtype=np.int64))
+    ds["seconds"] = ("policy", np.array([o.seconds for o in outcomes]), {"units": "s"})
+    _add_differences(ds, np.stack([o.revenue for o in outcomes]), labels)
+    if bound is not None:
+        _add_gaps(ds, *_bound_value(bound, network, demand, int(seed)))
+    ds.attrs.update(
+        {
+            "policies": json.dumps(labels),
+            "seed": int(seed),
+            "paths": int(paths),
+            "resolves": int(resolve),
+            "resolve_every_sale": int(bool(resolve_every_sale)),
+            "network": network.name,
+            "confidence": CONFIDENCE,
+            "rmkit_version": __version__,
+        }
+    )
+    return ds
+
+
+def _add_differences(ds, revenue: np.ndarray, labels: list[str]) -> None:
+    from scipy.stats import t as student_t
+
+    k, n = revenue.shape
+    diff = revenue[:, None, :] - revenue[None, :, :]
+    mean = diff.mean(axis=2)
+    if n > 1:
+        paired = diff.std(axis=2, ddof=1) / math.sqrt(n)
+        var = revenue.var(axis=1, ddof=1) / n
+        unpaired = np.sqrt(var[:, None] + var[None, :])
+        half = float(student_t.ppf(0.5 + CONFIDENCE / 2, n - 1)) * paired
+    else:
+        paired = unpaired = half = np.full((k, k), np.nan)
+    dims = ("policy", "versus")
+    ds.coords["versus"] = np.array(labels, dtype=object)
+    ds["difference_mean"] = (dims, mean, {"units": "currency", "description": "policy - versus"})
+    ds["difference_stderr"] = (dims, paired, {"units": "currency",
+                                              "description": "paired (common random numbers)"})
+    ds["difference_stderr_unpaired"] = (dims, unpaired, {"units": "currency",
+                                                         "description": "as if independent"})
+    ds["difference_ci_low"] = (dims, mean - half, {"units": "currency"})
+    ds["difference_ci_high"] = (dims, mean + half, {"units": "currency"})
+
+
+def _add_gaps(ds, value: float, stderr: float, source: str) -> None:
+    from scipy.stats import norm
+
+    mean = ds["revenue_mean"].values
+    se = np.sqrt(ds["revenue_stderr"].values ** 2 + stderr**2)
+    z = float(norm.ppf(0.5 + CONFIDENCE / 2))
+    gap = value - mean
+    ds["bound"] = ((), value, {"units": "currency", "source": source})
+    ds["bound_stderr"] = ((), stderr, {"units": "currency"})
+    ds["gap"] = ("policy", gap, {"units": "currency", "description": "bound - mean revenue"})
+    ds["gap_percent"] = ("policy", 100.0 * gap / value if value else np.full_like(gap, np.nan),
+                         {"units": "%"})
+    ds["gap_ci_low"] = ("policy", gap - z * se, {"units": "currency"})
+    ds["gap_ci_high"] = ("policy", gap + z * se, {"units": "currency"})
