@@ -23,7 +23,7 @@ from pathlib import Path
 import numpy as np
 
 from rmkit import BookingState, get_solver
-from rmkit.model.hub_spoke import read_hub_spoke
+from rmkit.model.scenario import load_scenario
 
 HUB_SPOKE = Path(__file__).resolve().parents[2] / "shared" / "benchmarks" / "hub-spoke"
 INSTANCES = ("rm_200_4_1.0_4.0", "rm_600_8_1.6_8.0")
@@ -92,7 +92,7 @@ def resolve_states(net, dem, result, paths: int, seed: int):
 
 
 def bench(name: str, paths: int) -> None:
-    scen = read_hub_spoke(HUB_SPOKE / f"{name}.txt.gz")
+    scen = load_scenario(HUB_SPOKE / f"{name}.txt.gz")
     net, dem = scen.network, scen.demand
     lr(net, dem, max_iterations=2)  # compile the kernels
     print(f"\n== {name}: {net.n_legs} legs, {net.n_products} products, {dem.n_periods} periods")

@@ -154,10 +154,10 @@ def main() -> None:
     parser.add_argument("--passes", type=int, default=3, help="walks through each state list")
     args = parser.parse_args()
 
-    from rmkit.model.hub_spoke import read_hub_spoke
+    from rmkit.model.scenario import load_scenario
 
     t_import = time.perf_counter()
-    ph_scen = read_hub_spoke(args.shared / f"{PH_INSTANCE}.txt.gz")
+    ph_scen = load_scenario(args.shared / f"{PH_INSTANCE}.txt.gz")
     print(f"read {PH_INSTANCE}: {time.perf_counter() - t_import:.2f} s")
     ph = time_ph(ph_scen.network, ph_scen.demand, args.repeats)
     print(
@@ -168,7 +168,7 @@ def main() -> None:
         f"solves/s  (goal < 2 s)"
     )
     for name in PATH_INSTANCES:
-        scen = read_hub_spoke(args.shared / f"{name}.txt.gz")
+        scen = load_scenario(args.shared / f"{name}.txt.gz")
         net, dem = scen.network, scen.demand
         for label, states in (
             ("booking path", booking_path_states(net, dem, seed=7)),

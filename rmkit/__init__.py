@@ -7,7 +7,8 @@ model; validate them before using them to steer real sales.
 from rmkit._version import __version__
 from rmkit.errors import InputError, ProblemTooLargeError, SolverError
 from rmkit.methods.base import REGISTRY, Solver, Tags, get_solver, load_all, register
-from rmkit.model.demand import DemandModel, load_factor
+from rmkit.model.demand import DEMAND_KINDS, Arrivals, DemandModel, load_factor
+from rmkit.model.independent import IndependentDemand
 from rmkit.model.network import Leg, Network, Product
 from rmkit.model.scenario import Scenario, load_scenario, save_scenario, scenario_from_model
 from rmkit.results import SCHEMA, STATUSES, BookingState, SolveResult
@@ -35,8 +36,11 @@ __all__ = [
     "REGISTRY",
     "SCHEMA",
     "STATUSES",
+    "Arrivals",
     "BookingState",
+    "DEMAND_KINDS",
     "DemandModel",
+    "IndependentDemand",
     "InputError",
     "Leg",
     "Network",

@@ -108,10 +108,50 @@ def _dim_sizes(network: Network, period: int, n_periods: int) -> dict[str, int]:
 
 
 @dataclass(frozen=True, eq=False)
+class StatePolicy:
+    """A policy stored for every period and every capacity vector of the grid (the exact DP's).
+
+    ``bits[t - t0, s, j // 8]`` has bit ``j % 8`` set iff product j is offered in period t at
+    flat state ``s = sum_i x_i * strides[i]``, the row-major index over the network's *full*
+    capacities ``(c_0+1, ..., c_{m-1}+1)``. ``values`` (optional) is the value to go at period
+    ``t0`` over the whole grid.
+    """
+
+    bits: np.ndarray  # uint8 (T - t0, n_states, ceil(n / 8))
+    strides: np.ndarray  # int64 (n_legs,)
+    t0: int = 0
+    values: np.ndarray | None = None
+
+    def __post_init__(self) -> None:
+        bits = np.ascontiguousarray(self.bits, dtype=np.uint8)
+        strides = np.ascontiguousarray(self.strides, dtype=np.int64)
+        if bits.ndim != 3 or strides.ndim != 1:
+            raise ValueError(f"StatePolicy: bits must be 3-D and strides 1-D, got {bits.shape}, "
+                             f"{strides.shape}")
+        for name, a in (("bits", bits), ("strides", strides)):
+            a.setflags(write=False)
+            object.__setattr__(self, name, a)
+        if self.values is not None:
+            v = np.array(self.values, dtype=np.float64, copy=True)
+            v.setflags(write=False)
+            object.__setattr__(self, "values", v)
+
+    def flat_index(self, capacity: np.ndarray) -> np.ndarray:
+        """Flat grid index of capacity vectors (shape ``(..., m)`` -> ``(...)``)."""
+        return np.asarray(capacity, dtype=np.int64) @ self.strides
+
+    def offers(self, period: int, capacity: np.ndarray, n_products: int) -> np.ndarray:
+        """``(n,)`` bool: the products offered in ``period`` with ``capacity`` seats left."""
+        row = self.bits[int(period) - self.t0, int(self.flat_index(capacity))]
+        return np.unpackbits(row, bitorder="little")[:n_products].astype(bool)
+
+
+@dataclass(frozen=True, eq=False)
 class SolveResult:
     """What every solver returns: labelled-by-schema arrays plus provenance.
 
-    ``variables`` maps :data:`SCHEMA` names to arrays. ``payload`` holds unlabelled internals
+    ``variables`` maps :data:`SCHEMA` names to arrays. ``policy`` is a stored policy over the
+    whole state grid (the exact DP's), when the method gives one. ``payload`` holds unlabelled
     other parts of rmkit need (e.g. the exact DP's packed decisions); it is not exported.
     """
 
@@ -127,6 +167,7 @@ class SolveResult:
     capacity: tuple[int, ...] = ()
     message: str = ""
     payload: Mapping[str, Any] = field(default_factory=dict)
+    policy: StatePolicy | None = None
 
     def __post_init__(self) -> None:
         if self.status not in STATUSES:

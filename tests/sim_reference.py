@@ -15,6 +15,7 @@ from scipy.optimize import linprog
 
 from rmkit import DemandModel, Network, Solver, SolveResult, Tags
 from rmkit.methods.base import SolveOutput
+from rmkit.results import StatePolicy
 from tests.instances import brute_force_values
 
 TOL = 1e-9  # the documented rounding slack of the rule fare >= sum of bid prices
@@ -30,7 +31,7 @@ def brute_force_decisions(network: Network, demand: DemandModel) -> tuple[dict, 
     """(values, result) where the result carries decision bits of the optimal policy.
 
     Accept j in period t at state x iff x - A_j >= 0 and f_j >= V_{t+1}(x) - V_{t+1}(x - A_j)
-    (Talluri & van Ryzin 2004, section 3.1), packed as the exact method's payload.
+    (Talluri & van Ryzin 2004, section 3.1), packed as a stored policy (``result.policy``).
     """
     values = brute_force_values(network, demand)
     a, f = network.incidence, network.fares
@@ -51,7 +52,7 @@ def brute_force_decisions(network: Network, demand: DemandModel) -> tuple[dict, 
         network=network,
         n_periods=T,
         variables={"value": np.float64(values[0][c])},
-        payload={"decision_bits": bits, "state_strides": strides},
+        policy=StatePolicy(bits, strides),
     )
     return values, result
 
@@ -173,9 +174,9 @@ def reference_replay(network, streams, control, control_at, points, every_sale=F
                     b = int(bkt[i, j])
                     taken = sum(v for (ii, bb), v in sold.items() if ii == i and bb >= b)
                     ok = ok and b >= 0 and taken + 1 <= lim[i, b]
-            elif ok and control == "exact":
-                s = sum(x[i] * int(res.payload["state_strides"][i]) for i in range(m))
-                byte = int(res.payload["decision_bits"][t - res.period, s, j // 8])
+            elif ok and control == "decisions":
+                s = sum(x[i] * int(res.policy.strides[i]) for i in range(m))
+                byte = int(res.policy.bits[t - res.policy.t0, s, j // 8])
                 ok = bool((byte >> (j % 8)) & 1)
             if ok:
                 for i in legs:
@@ -210,28 +211,67 @@ def bernstein_halfwidth(values: np.ndarray, value_range: float, delta: float = 1
 
 @contextmanager
 def interpreted_kernels():
-    """Run the simulator kernels as plain Python: every compiled function of the kernel module is
-    swapped for its ``py_func`` (so the loop's calls to its helpers are interpreted too)."""
-    import rmkit.kernels.replay as kernels
+    """Run the simulator's kernels as plain Python: every compiled function of the replay kernel,
+    the demand kinds' kernels and the controls is swapped for its ``py_func`` (so the loop's
+    calls to its helpers are interpreted too; the extension points dispatch in Python)."""
+    import sys
 
-    compiled = {k: v for k, v in vars(kernels).items() if hasattr(v, "py_func")}
+    import rmkit.controls
+    import rmkit.kernels.independent_demand  # noqa: F401
+    import rmkit.kernels.replay
+
+    rmkit.controls.load_controls()
+    modules = [m for name, m in sys.modules.items()
+               if name.startswith(("rmkit.kernels.", "rmkit.controls.")) and m is not None]
+    swapped = []
+    for module in modules:
+        for name, fn in list(vars(module).items()):
+            if hasattr(fn, "py_func"):
+                swapped.append((module, name, fn))
+                setattr(module, name, fn.py_func)
     try:
-        for name, fn in compiled.items():
-            setattr(kernels, name, fn.py_func)
-        yield kernels.run_requests
+        yield rmkit.kernels.replay.replay_paths
     finally:
-        for name, fn in compiled.items():
-            setattr(kernels, name, fn)
+        for module, name, fn in swapped:
+            setattr(module, name, fn)
 
 
-def kernel_both_ways(args_before_book: tuple, make_book) -> tuple[list, list]:
-    """Books after :func:`rmkit.kernels.replay.run_requests` ran compiled and interpreted on the
-    same inputs (``make_book()`` gives fresh seats, revenue, accepted, rejected, sold, next)."""
-    from rmkit.kernels.replay import run_requests
+def kernel_both_ways(args_before_book: tuple, make_book, make_trace, strides: np.ndarray
+                     ) -> tuple[list, list]:
+    """Books (and traces) after :func:`rmkit.kernels.replay.replay_paths` ran compiled and
+    interpreted on the same inputs (``make_book()`` gives fresh seats, revenue, accepted, lost,
+    memo, next; ``make_trace()`` a fresh trace array)."""
+    from rmkit.kernels.replay import replay_paths
 
-    compiled = make_book()
-    run_requests(*args_before_book, *compiled)
-    plain = make_book()
+    compiled, trace = make_book(), make_trace()
+    replay_paths(*args_before_book, tuple(compiled), trace, strides)
+    plain, plain_trace = make_book(), make_trace()
     with interpreted_kernels() as run_plain:
-        run_plain(*args_before_book, *plain)
-    return compiled, plain
+        run_plain(*args_before_book, tuple(plain), plain_trace, strides)
+    return [*compiled, trace], [*plain, plain_trace]
+
+
+def state_distribution(network: Network, demand: DemandModel, result: SolveResult) -> np.ndarray:
+    """``(T, S)``: P(flat state at the start of period t) under ``result.policy``, by a plain
+    forward recursion over dicts (probability mass pushed period by period, no sampling)."""
+    a, p = network.incidence, demand.probabilities
+    strides = grid_strides(network)
+    n_states = network.state_space_size
+    out = np.zeros((demand.n_periods, n_states))
+    now = {tuple(int(c) for c in network.capacities): 1.0}
+    for t in range(demand.n_periods):
+        nxt: dict = {}
+        for x, mass in now.items():
+            s = int(np.dot(x, strides))
+            out[t, s] += mass
+            stay = mass * (1.0 - p[t].sum())
+            for j in range(network.n_products):
+                y = tuple(int(v) for v in np.subtract(x, a[:, j]))
+                offered = (result.policy.bits[t, s, j // 8] >> (j % 8)) & 1
+                if min(y) >= 0 and offered:
+                    nxt[y] = nxt.get(y, 0.0) + mass * p[t, j]
+                else:
+                    stay += mass * p[t, j]
+            nxt[x] = nxt.get(x, 0.0) + stay
+        now = nxt
+    return out

@@ -17,7 +17,7 @@ import pytest
 
 from rmkit import InputError, get_solver
 from rmkit.model.scenario import save_scenario, scenario_from_model
-from rmkit.workflows.calibrate import TUNABLES, ScaledPolicy, calibrate, parse_range, tunable_names
+from rmkit.workflows.calibrate import ScaledPolicy, calibrate, parse_range, tunable_names, tunables
 from rmkit.workflows.policies import SolverPolicy
 from rmkit.workflows.simulate import simulate
 from tests.instances import brute_force_values, small_problem
@@ -34,7 +34,7 @@ def tuned():
 def test_tuned_beats_default_on_fresh_paths_within_noise_and_stays_below_the_optimum(tuned):
     net, dem = small_problem()
     optimum = brute_force_values(net, dem)[0][tuple(int(c) for c in net.capacities)]
-    kind, method, value = tuned.reference
+    kind, method, value = tuned.reference.kind, tuned.reference.method, tuned.reference.value
     assert (kind, method) == ("optimum", "exact") and value == pytest.approx(optimum, rel=1e-9)
     mean, se, lo, hi = tuned.improvement_fresh()
     assert tuned.tuned_fresh.mean >= tuned.default_fresh.mean - 3 * se
@@ -69,6 +69,7 @@ def test_scaled_policy_limits():
 
 
 def test_parse_range():
+    TUNABLES = {**tunables(get_solver("davn")), **tunables(get_solver("emsrb-heuristic"))}
     assert parse_range("resolve", "0:3", TUNABLES["resolve"]) == ("choice", (0, 1, 2, 3))
     kind, grid = parse_range("buckets", "1:40", TUNABLES["buckets"])
     assert kind == "choice" and grid[0] == 1 and grid[-1] == 40 and len(grid) <= 11

@@ -2,9 +2,8 @@
 
 Independent references: exact values are checked against the plain backward induction of
 tests/instances.py (Talluri & van Ryzin 2004, section 3.1, written apart from rmkit's kernels);
-the simulated visit shares of the optimal policy against the exact forward recursion of
-rmkit.methods.shared.network_dp.visit_distribution (a different algorithm: probability mass pushed period by
-period, no sampling).
+the simulated visit shares of the optimal policy against a plain forward recursion of the state
+distribution (tests/sim_reference.py: probability mass pushed period by period, no sampling).
 """
 
 from __future__ import annotations
@@ -27,7 +26,7 @@ from rmkit.workflows.compare import (
     check_allocation,
     check_paths,
     compare,
-    optimal_visits,
+    policy_visits,
     quoted_bid_prices,
     ranked,
     visit_weighted_errors,
@@ -172,12 +171,10 @@ def test_one_leg_table_of_exact_seat_values_has_zero_error():
         for x in range(1, 5):
             table[t, x, 0] = v[t + 1][(x,)] - v[t + 1][(x - 1,)]
     exact = get_solver("exact").solve(net, dem)
-    visits = optimal_visits(net, dem, exact, dem.sample_streams(200, 3))
+    visits = policy_visits(net, dem, exact, dem.sample_arrivals(200, 3))
     fake = SolveResult(method="exact-table", network=net, n_periods=10,
                        variables={"value": np.float64(0.0), "bid_price_table": table})
-    from rmkit.workflows.compare import exact_values_at
-
-    leg, cost = exact_values_at(net, dem, visits)
+    leg, cost = get_solver("exact").marginal_values(net, dem, visits.period, visits.state)
     errors = visit_weighted_errors(visits, net.incidence, leg, cost,
                                    quoted_bid_prices(fake, visits))
     assert errors["bid_price_error_max"] == pytest.approx(0.0, abs=1e-9)
@@ -192,38 +189,19 @@ def test_one_leg_table_of_exact_seat_values_has_zero_error():
 
 
 def test_visit_shares_agree_with_the_exact_forward_recursion():
-    from rmkit.methods.shared.network_dp import flat_index, grid_strides, visit_distribution
+    from tests.sim_reference import grid_strides, state_distribution
 
     net, dem = random_problem(11, n_legs=2, max_capacity=3, n_products=4, n_periods=8)
     exact = get_solver("exact").solve(net, dem)
     n = 4000
-    visits = optimal_visits(net, dem, exact, dem.sample_streams(n, 5))
-    exact_p = visit_distribution(net, dem, exact.payload["decision_bits"])
+    visits = policy_visits(net, dem, exact, dem.sample_arrivals(n, 5))
+    exact_p = state_distribution(net, dem, exact)
     empirical = np.zeros_like(exact_p)
-    s = flat_index(visits.state, grid_strides(net.capacities))
+    s = visits.state @ grid_strides(net)
     np.add.at(empirical, (visits.period, s), visits.weight * dem.n_periods)
     sd = np.sqrt(exact_p * (1 - exact_p) / n)
     assert np.all(np.abs(empirical - exact_p) <= 4.5 * sd + 2e-3)
     np.testing.assert_allclose(empirical.sum(axis=1), 1.0)
-
-
-def test_trajectory_kernel_matches_its_python_version():
-    from rmkit.kernels.visits import exact_trajectories
-
-    net, dem = small_problem()
-    exact = get_solver("exact").solve(net, dem)
-    streams = dem.sample_streams(20, 1)
-    a = net.incidence
-    leg_list = np.ascontiguousarray(np.nonzero(a.T)[1], dtype=np.int64)
-    leg_ptr = np.concatenate([[0], np.cumsum(a.sum(axis=0))]).astype(np.int64)
-    outs = []
-    for fn in (exact_trajectories, exact_trajectories.py_func):
-        seats = np.tile(net.capacities.astype(np.int64), (20, 1))
-        out = np.empty(streams.shape, dtype=np.int64)
-        fn(streams, exact.payload["decision_bits"], exact.payload["state_strides"], leg_ptr,
-           leg_list, seats, out)
-        outs.append(out)
-    np.testing.assert_array_equal(outs[0], outs[1])
 
 
 def test_unknown_method_lists_valid_ones(problem):

@@ -238,7 +238,7 @@ def test_bad_settings_are_refused_with_the_template():
         get_solver("emsrb", fare_basis="half").solve(net, dem)
     with pytest.raises(InputError, match=r"The 'multiplier' parameter of emsrb-heuristic"):
         get_solver("emsrb-heuristic", multiplier=-1.0).solve(net, dem)
-    with pytest.raises(InputError, match=r"'davn' is a leg heuristic"):
+    with pytest.raises(InputError, match=r"'davn' itself needs displacement bid prices"):
         get_solver("davn", displacement_method="davn").solve(net, dem)
     with pytest.raises(InputError, match=r"unknown method 'nope'; valid methods:"):
         get_solver("emsrb", fare_basis="network", displacement_method="nope").solve(net, dem)

@@ -30,7 +30,7 @@ from rmkit.kernels.decomposition import (
 from rmkit.kernels.single_leg import leg_values_batch
 from rmkit.methods.dpd import displaced_fares
 from rmkit.methods.shared.leg_dp import leg_tables, product_legs
-from rmkit.model.hub_spoke import read_hub_spoke
+from rmkit.model.scenario import load_scenario
 from tests.conftest import vendored
 from tests.instances import brute_force_values, random_problem, small_problem
 from tests.published import DLP_BOUND, LR_BOUND, POLICY_REVENUE
@@ -359,7 +359,7 @@ BELOW_PUBLISHED = {"rm_200_4_1.6_4.0", "rm_200_4_1.6_8.0"}
 
 @pytest.mark.parametrize("name", VENDORED)
 def test_lr_bound_matches_published_value(name):
-    scen = read_hub_spoke(vendored(name))
+    scen = load_scenario(vendored(name))
     res = quiet_solve("lr", scen.network, scen.demand)
     published = LR_BOUND[name]  # Topaloglu (2009), Table 1: LR bound, whole currency units.
     assert res.value <= published * 1.005, (name, res.value)

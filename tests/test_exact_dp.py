@@ -1,4 +1,4 @@
-"""The exact network DP: against brute force and quantecon, payload format, refusals, queries."""
+"""The exact network DP: against brute force and quantecon, stored policy, refusals, queries."""
 
 from __future__ import annotations
 
@@ -16,12 +16,8 @@ from rmkit.methods.shared.network_dp import (
     estimate,
     grid_states,
     grid_strides,
-    leg_marginal_values,
-    leg_marginal_values_slice,
-    opportunity_costs,
-    opportunity_costs_slice,
+    marginal_values,
     solve_network_dp,
-    visit_distribution,
 )
 from rmkit.methods.shared.single_leg import single_leg_dp
 from tests.conftest import EXAMPLE
@@ -147,7 +143,7 @@ def test_decision_bits_are_the_brute_force_decisions(n_products):
     _, bf = brute_table(net, dem)
     assert n_products < 12 or _layout(net).pair.any()  # neighbours on the same legs share a pass
     res = get_solver("exact").solve(net, dem)
-    bits = res.payload["decision_bits"]
+    bits = res.policy.bits
     states = grid_states(net.capacities)
     assert bits.shape == (5, len(states), (n_products + 7) // 8) and bits.dtype == np.uint8
     a, f = net.incidence, net.fares
@@ -194,15 +190,6 @@ def test_kernels_match_their_py_func():
                   pipeline(kern.network_values.py_func, s // 3, 2)):
         for x, y in zip(compiled, other, strict=True):
             np.testing.assert_array_equal(x, y)
-    # the visit kernel too
-    keep = np.array([0, 2, 4])
-    outs = []
-    for fn in (kern.visit_probabilities, kern.visit_probabilities.py_func):
-        out = np.zeros((3, s))
-        fn(prob, lay.offsets, lay.masked, lay.run_start, lay.run_stop, lay.run_ptr, lay.umask,
-           compiled[1].reshape(4, s, 1), s - 1, keep, out, np.zeros(s), np.zeros(s))
-        outs.append(out)
-    np.testing.assert_array_equal(*outs)
 
 
 def test_results_do_not_depend_on_threads_or_tiles():
@@ -214,16 +201,16 @@ def test_results_do_not_depend_on_threads_or_tiles():
 
 
 # ------------------------------------------------------------------ solver result
-def test_solver_result_and_payload_format():
+def test_solver_result_and_stored_policy_format():
     net, dem = small_problem()
     ref, bf = brute_table(net, dem)
     res = get_solver("exact").solve(net, dem)
     c = tuple(int(v) for v in net.capacities)
     assert res.value == pytest.approx(bf[0][c], rel=1e-12)
-    strides = res.payload["state_strides"]
+    strides = res.policy.strides
     assert strides.dtype == np.int64 and strides.tolist() == grid_strides(net.capacities).tolist()
     assert strides[-1] == 1
-    np.testing.assert_allclose(res.payload["values"], ref[0], rtol=1e-12)
+    np.testing.assert_allclose(res.policy.values, ref[0], rtol=1e-12)
     for i in range(net.n_legs):
         y = list(c)
         y[i] -= 1
@@ -231,7 +218,7 @@ def test_solver_result_and_payload_format():
     for j in range(net.n_products):
         y = tuple(int(v) for v in np.array(c) - net.incidence[:, j])
         assert res["opportunity_cost"][j] == pytest.approx(bf[1][c] - bf[1][y], rel=1e-9)
-    assert "decision_bits" not in res.to_dataset()  # payload is not exported
+    assert set(res.to_dataset().data_vars) == {"value", "bid_price", "opportunity_cost"}
 
 
 def test_mid_horizon_state_uses_the_full_grid():
@@ -240,7 +227,8 @@ def test_mid_horizon_state_uses_the_full_grid():
     x0 = (1, 0, 2)
     res = get_solver("exact").solve(net, dem, state=BookingState(period=5, capacity=x0))
     assert res.value == pytest.approx(bf[5][x0], rel=1e-12)
-    assert res.payload["decision_bits"].shape[:2] == (dem.n_periods - 5, net.state_space_size)
+    assert res.policy.bits.shape[:2] == (dem.n_periods - 5, net.state_space_size)
+    assert res.policy.t0 == 5
     assert np.isinf(res.bid_prices[1]) and np.all(np.isfinite(res.bid_prices[[0, 2]]))
     unsellable = np.any(np.array(x0)[:, None] < net.incidence, axis=0)
     assert np.all(np.isinf(res["opportunity_cost"][unsellable]))
@@ -250,7 +238,7 @@ def test_keep_decisions_off_drops_the_bits_only():
     net, dem = small_problem()
     full = get_solver("exact").solve(net, dem)
     lean = get_solver("exact", keep_decisions=False).solve(net, dem)
-    assert "decision_bits" not in lean.payload
+    assert lean.policy.bits.shape[0] == 0 and full.policy.bits.shape[0] == dem.n_periods
     assert lean.value == full.value
 
 
@@ -284,102 +272,41 @@ def test_memory_limit_is_a_parameter():
 
 
 # ------------------------------------------------------------------ queries
-def test_leg_marginal_values_and_opportunity_costs_at_states():
+def test_marginal_values_at_period_state_pairs_match_brute_force():
     net, dem = small_problem()
     _, bf = brute_table(net, dem)
-    states = np.array([[3, 2, 1], [0, 1, 1], [1, 1, 0]])
-    states = np.minimum(states, net.capacities)
-    mv = leg_marginal_values(net, dem, states, period=2)
-    oc = opportunity_costs(net, dem, states, period=2)
-    assert mv.dims == ("period", "state", "leg") and oc.dims == ("period", "state", "product")
-    assert mv.period.values.tolist() == list(range(2, dem.n_periods))
-    assert mv[f"capacity_{net.leg_ids[0]}"].values.tolist() == states[:, 0].tolist()
-    for t in range(2, dem.n_periods):
-        for q, x in enumerate(states):
-            for i in range(net.n_legs):
-                got = float(mv.sel(period=t)[q, i])
-                if x[i] == 0:
-                    assert np.isinf(got)
-                else:
-                    y = x.copy()
-                    y[i] -= 1
-                    want = bf[t + 1][tuple(x)] - bf[t + 1][tuple(y)]
-                    assert got == pytest.approx(want, rel=1e-9, abs=1e-9)
-            for j in range(net.n_products):
-                y = x - net.incidence[:, j]
-                got = float(oc.sel(period=t)[q, j])
-                if np.any(y < 0):
-                    assert np.isinf(got)
-                else:
-                    assert got == pytest.approx(bf[t + 1][tuple(x)] - bf[t + 1][tuple(y)],
-                                                rel=1e-9, abs=1e-9)
+    states = np.minimum(np.array([[3, 2, 1], [0, 1, 1], [1, 1, 0], [3, 2, 1]]), net.capacities)
+    periods = np.array([2, 5, dem.n_periods - 1, 0])
+    leg, cost = marginal_values(net, dem, periods, states)
+    assert leg.shape == (4, net.n_legs) and cost.shape == (4, net.n_products)
+    for q, (t, x) in enumerate(zip(periods, states, strict=True)):
+        for i in range(net.n_legs):
+            if x[i] == 0:
+                assert np.isinf(leg[q, i])
+                continue
+            y = x.copy()
+            y[i] -= 1
+            want = bf[t + 1][tuple(x)] - bf[t + 1][tuple(y)]
+            assert leg[q, i] == pytest.approx(want, rel=1e-9, abs=1e-9)
+        for j in range(net.n_products):
+            y = x - net.incidence[:, j]
+            if np.any(y < 0):
+                assert np.isinf(cost[q, j])
+            else:
+                assert cost[q, j] == pytest.approx(bf[t + 1][tuple(x)] - bf[t + 1][tuple(y)],
+                                                   rel=1e-9, abs=1e-9)
+    # the solver's own query is the same function with its memory setting
+    got = get_solver("exact").marginal_values(net, dem, periods, states)
+    np.testing.assert_array_equal(got[0], leg)
 
 
 def test_marginal_value_queries_refuse_outputs_above_the_memory_limit():
     net, dem = small_problem()
     states = grid_states(net.capacities)
     with pytest.raises(ProblemTooLargeError, match="fewer states"):
-        leg_marginal_values(net, dem, states, max_memory_gb=1e-6)
-
-
-def test_slices_have_one_capacity_dim_per_free_leg():
-    net, dem = small_problem()
-    legs = net.leg_ids
-    mv = leg_marginal_values_slice(net, dem, {legs[0]: range(int(net.capacities[0]) + 1),
-                                              legs[2]: 1})
-    assert mv.dims == ("period", f"capacity_{legs[0]}", f"capacity_{legs[1]}", "leg")
-    assert int(mv[f"capacity_{legs[2]}"]) == 1
-    pts = leg_marginal_values(net, dem, [[int(net.capacities[0]), 1, 1]])
-    np.testing.assert_array_equal(
-        mv.isel({f"capacity_{legs[0]}": -1}).sel({f"capacity_{legs[1]}": 1}).values,
-        pts.isel(state=0).values,
-    )
-    oc = opportunity_costs_slice(net, dem, {legs[1]: [0, 1]}, period=3)
-    assert oc.dims[-1] == "product" and oc.sizes[f"capacity_{legs[1]}"] == 2
-    with pytest.raises(InputError, match="unknown leg"):
-        leg_marginal_values_slice(net, dem, {"nowhere": 1})
-
-
-def test_visit_distribution_matches_a_plain_forward_recursion():
-    net, dem = small_problem()
-    res = get_solver("exact").solve(net, dem)
-    bits = res.payload["decision_bits"]
-    dist = visit_distribution(net, dem, bits)
-    states = [tuple(int(v) for v in x) for x in grid_states(net.capacities)]
-    index = {x: k for k, x in enumerate(states)}
-    now = {tuple(int(c) for c in net.capacities): 1.0}
-    for t in range(dem.n_periods):
-        row = np.zeros(len(states))
-        for x, pr in now.items():
-            row[index[x]] = pr
-        np.testing.assert_allclose(dist[t], row, atol=1e-14)
-        later: dict = {}
-        for x, pr in now.items():
-            stay = pr
-            for j in range(net.n_products):
-                if bit(bits, t, index[x], j):
-                    y = tuple(int(v) for v in np.array(x) - net.incidence[:, j])
-                    later[y] = later.get(y, 0.0) + pr * dem.probabilities[t, j]
-                    stay -= pr * dem.probabilities[t, j]
-            later[x] = later.get(x, 0.0) + stay
-        now = later
-    end = visit_distribution(net, dem, bits, periods=[dem.n_periods])
-    np.testing.assert_allclose(end[0].sum(), 1.0, rtol=1e-12)
-
-
-def test_visit_distribution_from_a_mid_state():
-    net, dem = small_problem()
-    x0 = (1, 1, 1)
-    res = get_solver("exact").solve(net, dem, state=BookingState(period=4, capacity=x0))
-    dist = visit_distribution(net, dem, res.payload["decision_bits"], period=4, capacity=x0,
-                              periods=[4, 8])
-    strides = res.payload["state_strides"]
-    assert dist[0, int(np.dot(x0, strides))] == 1.0
-    assert dist[1].sum() == pytest.approx(1.0, rel=1e-12)
-    reachable = np.all(grid_states(net.capacities) <= np.array(x0), axis=1)
-    assert np.all(dist[1][~reachable] == 0)
-    with pytest.raises(InputError, match="decision_bits"):
-        visit_distribution(net, dem, res.payload["decision_bits"])
+        marginal_values(net, dem, np.zeros(len(states), np.int64), states, max_memory_gb=1e-6)
+    with pytest.raises(InputError, match="periods"):
+        marginal_values(net, dem, np.array([dem.n_periods]), states[:1])
 
 
 def test_bound_command_on_the_bundled_example(capsys):

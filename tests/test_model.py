@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 from scipy.stats import binom, poisson
 
-from rmkit import DemandModel, InputError, Leg, Network, Product, load_factor
+from rmkit import DemandModel, IndependentDemand, InputError, Leg, Network, Product, load_factor
 
 
 def test_incidence_and_state_space():
@@ -72,7 +72,7 @@ def test_exact_to_come_law_is_binomial_for_constant_probabilities():
 
 
 def test_booking_curves_spread_the_expected_demand():
-    dem = DemandModel.from_booking_curves(200, np.array([10.0, 5.0]), np.array([[2, 5], [5, 2]]))
+    dem = IndependentDemand.from_booking_curves(200, np.array([10.0, 5.0]), np.array([[2, 5], [5, 2]]))
     np.testing.assert_allclose(dem.demand_to_come(0), [10.0, 5.0])
     half = dem.n_periods // 2
     early, late = dem.probabilities[:half].sum(0), dem.probabilities[half:].sum(0)
@@ -81,11 +81,11 @@ def test_booking_curves_spread_the_expected_demand():
 
 def test_booking_curves_refuse_too_few_periods_and_say_how_many():
     with pytest.raises(InputError, match=r"use at least (\d+) periods") as err:
-        DemandModel.from_booking_curves(20, np.array([30.0]), np.array([[2.0, 2.0]]))
+        IndependentDemand.from_booking_curves(20, np.array([30.0]), np.array([[2.0, 2.0]]))
     need = int(err.value.args[0].rsplit("at least ", 1)[1].split()[0])
-    DemandModel.from_booking_curves(need, np.array([30.0]), np.array([[2.0, 2.0]]))
+    IndependentDemand.from_booking_curves(need, np.array([30.0]), np.array([[2.0, 2.0]]))
     with pytest.raises(InputError):
-        DemandModel.from_booking_curves(need - 1, np.array([30.0]), np.array([[2.0, 2.0]]))
+        IndependentDemand.from_booking_curves(need - 1, np.array([30.0]), np.array([[2.0, 2.0]]))
 
 
 def test_streams_are_common_random_numbers():

@@ -18,7 +18,7 @@ from scipy.optimize import linprog
 from rmkit import BookingState, DemandModel, Network, SolverError, get_solver
 from rmkit.errors import InputError
 from rmkit.methods.shared.network_lp import NetworkLP
-from rmkit.model.hub_spoke import read_hub_spoke
+from rmkit.model.scenario import load_scenario
 from tests.conftest import HUB_SPOKE, instance_path, shared_names, vendored
 from tests.instances import brute_force_values, random_problem, small_problem
 from tests.published import DLP_BOUND
@@ -29,7 +29,7 @@ SHARED_200 = sorted(n for n in DLP_BOUND if not vendored(n).exists())
 
 # ----------------------------------------------------------------------------- published bound
 def _check_published_dlp(name: str) -> None:
-    scen = read_hub_spoke(instance_path(name))
+    scen = load_scenario(instance_path(name))
     res = get_solver("dlp").solve(scen.network, scen.demand)
     assert res.status == "optimal"
     # Topaloglu (2009), Table 1: published DLP bound, rounded to whole currency units.
@@ -178,7 +178,7 @@ def test_non_finite_input_is_refused():
 
 
 def test_time_limit_gives_a_status_and_a_warning_not_zeros():
-    scen = read_hub_spoke(instance_path("rm_200_4_1.6_8.0"))
+    scen = load_scenario(instance_path("rm_200_4_1.6_8.0"))
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         res = get_solver("dlp", time_limit=1e-9).solve(scen.network, scen.demand)
@@ -350,7 +350,7 @@ def test_rlp_bid_prices_are_averaged_sample_duals():
 
 @pytest.mark.parametrize("method", ["ph", "rlp"])
 def test_stderr_shrinks_like_one_over_sqrt_samples_and_seeds_agree(method):
-    scen = read_hub_spoke(instance_path("rm_200_4_1.2_4.0"))
+    scen = load_scenario(instance_path("rm_200_4_1.2_4.0"))
     net, dem = scen.network, scen.demand
     small = get_solver(method, samples=100).solve(net, dem, seed=1)
     large = get_solver(method, samples=1600).solve(net, dem, seed=1)
@@ -365,7 +365,7 @@ def test_stderr_shrinks_like_one_over_sqrt_samples_and_seeds_agree(method):
 
 @pytest.mark.parametrize("method", ["ph", "rlp", "pnlp"])
 def test_time_limit_reported_for_every_method(method):
-    scen = read_hub_spoke(instance_path("rm_200_4_1.6_8.0"))
+    scen = load_scenario(instance_path("rm_200_4_1.6_8.0"))
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         res = get_solver(method, time_limit=1e-9).solve(scen.network, scen.demand, seed=0)

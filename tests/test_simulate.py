@@ -18,8 +18,10 @@ from scipy.stats import binom, poisson
 
 from rmkit import DemandModel, InputError, Network, SolverError, SolveResult, Tags, load_all, load_scenario
 from rmkit.cli import main
-from rmkit.kernels.replay import CONTROL_CODES
+from rmkit.controls import get_control, load_controls
 from rmkit.methods.base import SolveOutput
+from rmkit.model.demand import Arrivals
+from rmkit.results import StatePolicy
 from rmkit.workflows.policies import FixedPolicy, make_policy
 from rmkit.workflows.simulate import compare_policies, replay, resolve_periods, simulate, summarize
 from tests.conftest import instance_path
@@ -57,7 +59,7 @@ def _fixed(net, n_periods, **variables) -> SolveResult:
 def _replay_streams(net, streams, policy, **kw):
     streams = np.asarray(streams, dtype=np.int32)
     dem = DemandModel(np.full((streams.shape[1], net.n_products), 1.0 / (net.n_products + 1)))
-    return replay(net, dem, make_policy(policy), streams, seed=0, **kw)
+    return replay(net, dem, make_policy(policy), Arrivals(streams, np.zeros((0, 0))), seed=0, **kw)
 
 
 # ---------------------------------------------------------------- control logic by hand
@@ -70,7 +72,7 @@ def test_fcfs_by_hand():
     out = _replay_streams(_two_leg_network(), HAND_STREAMS, "fcfs")
     assert out.revenue.tolist() == [250.0, 280.0]
     assert out.accepted.tolist() == [[1, 0, 1], [2, 1, 0]]
-    assert out.rejected.tolist() == [[1, 1, 1], [1, 1, 1]]
+    assert out.no_purchase.tolist() == [[1, 1, 1], [1, 1, 1]]
     assert out.seats_left.tolist() == [[0, 0], [0, 0]]
 
 
@@ -80,7 +82,7 @@ def test_static_bid_prices_by_hand():
     out = _replay_streams(net, HAND_STREAMS, _fixed(net, 6, bid_price=np.array([90.0, 70.0])))
     assert out.revenue.tolist() == [280.0, 280.0]
     assert out.accepted.tolist() == [[2, 1, 0], [2, 1, 0]]
-    assert out.rejected.tolist() == [[0, 0, 2], [1, 1, 1]]
+    assert out.no_purchase.tolist() == [[0, 0, 2], [1, 1, 1]]
     # a fare equal to the sum of its legs' bid prices is accepted (rule: fare >= sum)
     out = _replay_streams(net, HAND_STREAMS, _fixed(net, 6, bid_price=np.array([100.0, 50.0])))
     assert out.accepted.tolist() == [[1, 0, 1], [2, 1, 0]]
@@ -115,7 +117,7 @@ def test_nested_limits_by_hand():
     # path 1: AB yes; AB no; AB no; BC closed x2; AC: AB bucket 0.. = 1 + 1 <= 2 and BC -> 250
     assert out.revenue.tolist() == [250.0, 250.0]
     assert out.accepted.tolist() == [[1, 0, 1], [1, 0, 1]]
-    assert out.rejected.tolist() == [[1, 1, 1], [2, 2, 0]]
+    assert out.no_purchase.tolist() == [[1, 1, 1], [2, 2, 0]]
 
 
 def test_exact_bits_span_bytes_by_hand():
@@ -124,53 +126,36 @@ def test_exact_bits_span_bytes_by_hand():
     bits = np.zeros((3, 3, 2), dtype=np.uint8)
     bits[:, :, 1] = 0b10  # accept product 9 only, everywhere
     res = SolveResult(method="by-hand", network=net, n_periods=3, variables={},
-                      payload={"decision_bits": bits, "state_strides": np.array([1])})
-    out = _replay_streams(net, [[8, 9, 9], [9, 1, 9]], FixedPolicy(res, control="exact"))
+                      policy=StatePolicy(bits, np.array([1])))
+    out = _replay_streams(net, [[8, 9, 9], [9, 1, 9]], FixedPolicy(res, control="decisions"))
     assert out.revenue.tolist() == [38.0, 38.0]
     assert out.accepted[:, 9].tolist() == [2, 2]
 
 
 # ---------------------------------------------------------------- kernels vs their py_func
-def _kernel_inputs(seed: int):
-    net, dem = random_problem(seed, n_legs=3, max_capacity=3, n_products=10, n_periods=8)
-    rng = np.random.default_rng(seed)
-    m, n = net.n_legs, net.n_products
-    a = net.incidence
-    leg_list = np.nonzero(a.T)[1].astype(np.int64)
-    leg_ptr = np.concatenate([[0], np.cumsum(a.sum(axis=0))]).astype(np.int64)
-    cmax = net.max_capacity
-    table = rng.uniform(0, 150, size=(8, cmax + 1, m))
-    table[:, 0, :] = np.inf
-    _, exact = brute_force_decisions(net, dem)
-    arrays = dict(
-        t0=0,
-        bid=rng.uniform(0, 120, size=m),
-        table=table,
-        limit=rng.integers(0, 4, size=(m, 3)).astype(float),
-        bucket=rng.integers(-1, 3, size=(m, n)).astype(np.int64),
-        bits=np.array(exact.payload["decision_bits"]),
-        strides=np.array(exact.payload["state_strides"]),
-    )
-    streams = dem.sample_streams(6, seed)
-    return net, streams, leg_ptr, leg_list, arrays
-
-
-@pytest.mark.parametrize("control", sorted(CONTROL_CODES))
+@pytest.mark.parametrize("control", sorted(load_controls()))
 @pytest.mark.parametrize("stop_after_sale", [False, True])
 def test_kernel_matches_its_py_func(control, stop_after_sale):
-    net, streams, leg_ptr, leg_list, arrays = _kernel_inputs(11)
-    p, m, n = streams.shape[0], net.n_legs, net.n_products
+    from rmkit.workflows.simulate import grid_strides, kernel_network
+
+    net, dem = random_problem(11, n_legs=3, max_capacity=3, n_products=10, n_periods=8)
+    kind = get_control(control)
+    result = kind.example_result(net, dem, 11)
+    arrays = kind.arrays(result, net, net.capacities)
+    arrivals = dem.sample_arrivals(6, 11)
+    p, m, n = arrivals.n_paths, net.n_legs, net.n_products
+    width = max(kind.memory_width(arrays), 1)
 
     def book():
         return [np.tile(net.capacities, (p, 1)).astype(np.int64), np.zeros(p),
                 np.zeros((p, n), np.int64), np.zeros((p, n), np.int64),
-                np.zeros((p, m, 3), np.int64), np.full(p, 1, np.int64)]
+                np.zeros((p, m, width), np.int64), np.full(p, 1, np.int64)]
 
     paths = np.array([0, 2, 3, 5], dtype=np.int64)
     outs = kernel_both_ways(
-        (streams, paths, 7, stop_after_sale, CONTROL_CODES[control], net.fares, leg_ptr, leg_list,
-         arrays["t0"], arrays["bid"], arrays["table"], arrays["limit"], arrays["bucket"],
-         arrays["bits"], arrays["strides"]), book)
+        (arrays, dem.kernel_data(), arrivals.customer, arrivals.uniform, paths, 7,
+         stop_after_sale, kernel_network(net)), book, lambda: np.zeros((p, dem.n_periods), np.int64),
+        grid_strides(net.capacities))
     for a, b in zip(*outs, strict=True):
         np.testing.assert_array_equal(a, b)
     assert outs[0][5][[1, 4]].tolist() == [1, 1]  # paths not asked about are untouched
@@ -179,7 +164,8 @@ def test_kernel_matches_its_py_func(control, stop_after_sale):
 # ---------------------------------------------------------------- against a plain replay
 def _reference_case(policy, control, resolve, every_sale=False, seed=5):
     net, dem = small_problem()
-    streams = dem.sample_streams(60, seed)
+    arrivals = dem.sample_arrivals(60, seed)
+    streams = arrivals.customer
     points = set(resolve_periods(dem.n_periods, resolve).tolist())
     solver = policy
 
@@ -190,7 +176,7 @@ def _reference_case(policy, control, resolve, every_sale=False, seed=5):
 
     ref = reference_replay(net, streams, control, control_at, points, every_sale)
     recorder = RecordingPolicy(policy)
-    out = replay(net, dem, make_policy(recorder), streams, seed=seed, resolve=resolve,
+    out = replay(net, dem, make_policy(recorder), arrivals, seed=seed, resolve=resolve,
                  resolve_every_sale=every_sale)
     return ref, out, recorder
 
@@ -205,7 +191,7 @@ def test_resolves_match_a_plain_replay(policy, control, resolve):
     ref, out, recorder = _reference_case(policy, control, resolve)
     np.testing.assert_allclose(out.revenue, ref[0], rtol=0, atol=1e-9)
     np.testing.assert_array_equal(out.accepted, ref[1])
-    np.testing.assert_array_equal(out.rejected, ref[2])
+    np.testing.assert_array_equal(out.no_purchase, ref[2])
     np.testing.assert_array_equal(out.seats_left, ref[3])
     # each distinct (period, seats left) is solved exactly once, at the scheduled periods only
     assert sorted(recorder.calls) == sorted(ref[4])
@@ -269,7 +255,7 @@ def test_exact_policy_replays_the_dp_and_reaches_its_value():
     mean, se = float(ds.revenue_mean), float(ds.revenue_stderr)
     assert abs(mean - optimum) <= 3 * se, (mean, se, optimum)
     # path by path: straight from the value function, no bits involved
-    streams = dem.sample_streams(300, 4)
+    streams = dem.sample_arrivals(300, 4).customer
     a, f = net.incidence, net.fares
     for k in range(300):
         x, revenue = tuple(int(c) for c in net.capacities), 0.0
@@ -513,8 +499,8 @@ def test_every_registered_policy_stays_below_the_optimum(name):
 
 
 def _resolving_policies():
-    return sorted(n for n, cls in REGISTRY.items()
-                  if cls.tags.control in ("bid_price", "nested") and not cls.tags.stochastic)
+    return sorted(n for n, cls in REGISTRY.items() if cls.tags.gives_bid_prices
+                  and get_control(cls.tags.control).sale_sensitive and not cls.tags.stochastic)
 
 
 @pytest.mark.parametrize("name", _resolving_policies())
@@ -525,13 +511,13 @@ def test_registered_policy_re_solved_after_every_sale_matches_a_plain_replay(nam
 
     net, dem = small_problem()
     solver = get_solver(name)
-    streams = dem.sample_streams(25, 4)
+    arrivals = dem.sample_arrivals(25, 4)
 
     def control_at(t, x):
         return solver.solve(net, dem, state=BookingState(t, tuple(int(v) for v in x)))
 
-    ref = reference_replay(net, streams, solver.tags.control, control_at, {0, 6}, True)
-    out = replay(net, dem, make_policy(name), streams, seed=4, resolve=2, resolve_every_sale=True)
+    ref = reference_replay(net, arrivals.customer, solver.tags.control, control_at, {0, 6}, True)
+    out = replay(net, dem, make_policy(name), arrivals, seed=4, resolve=2, resolve_every_sale=True)
     np.testing.assert_allclose(out.revenue, ref[0], rtol=0, atol=1e-9)
     np.testing.assert_array_equal(out.accepted, ref[1])
     assert out.solves == len(ref[4])  # each distinct state solved once

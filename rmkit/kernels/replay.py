@@ -1,44 +1,105 @@
-"""numba kernels of the policy simulator: replay request streams under a booking control.
+"""numba kernel of the policy simulator: customers meet a booking control, path by path.
 
-One loop over (paths x periods) serves every control; a small decision function per control says
-whether one request is accepted. Arrays and scalars in, preallocated outputs updated in place, no
-RNG (the request streams are drawn beforehand), no validation (the caller checks shapes).
+The loop is split in two questions, each answered by a small function that its own module
+registers for its own array type (numba ``overload``), so that a new booking control or a new
+demand kind plugs in without an edit here:
 
-Controls (integer codes, see ``CONTROL_CODES``)
------------------------------------------------
-Product j uses legs ``leg_list[leg_ptr[j]:leg_ptr[j+1]]``; a request is refused outright when one
-of them has no seat left. Otherwise:
+``control_offers(ctrl, k, t, j, seats, memo, net)``
+    Does the control offer product j on path k in period t? Registered by each booking control
+    (:mod:`rmkit.controls`) for its arrays type. Seats are checked before it is asked
+    (:func:`offered`): a product whose legs lack a seat is never offered.
+``customer_chooses(dem, ctrl, k, t, c, u, seats, memo, net)``
+    What does an arriving customer of type c with purchase number u buy (a product index or -1)?
+    Registered by each demand kind (:mod:`rmkit.model`) for its kernel-data type; it asks
+    :func:`offered` about the products it considers, so every policy faces the same customers.
 
-* first come, first served: accept.
-* static bid price ``pi``: accept iff ``f_j >= sum_{i in j} pi_i``.
-* bid-price table ``B[t - t0, x_i, i]``: accept iff ``f_j >= sum_{i in j} B[t - t0, x_i, i]``.
-* nested limits: on every leg i of j, with bucket ``b = bucket[i, j]`` (-1 = closed), accept iff
-  ``sum_{b' >= b} sold[i, b'] + 1 <= limit[i, b]`` (sales since the limits were set).
-* exact decisions: bit ``j % 8`` of ``bits[t - t0, s, j // 8]`` with ``s = sum_i x_i stride_i``.
+``control_records_sale(ctrl, k, j, memo, net)`` lets a control keep per-path memory (nested
+limits count sales by bucket); controls that need none register nothing for it.
 
-The bid-price comparisons allow ``ACCEPT_TOLERANCE * f_j`` of rounding: LP duals of a product the
-LP takes partially sum to its fare exactly in exact arithmetic but may come back one ulp above it,
-and the rule ``f_j >= sum`` must still accept that product.
+``replay_paths`` is compiled once per (control, demand kind) pair of array types and cached. Arrays
+and scalars in, preallocated outputs updated in place, no RNG (customers are drawn beforehand),
+no validation (the Python side checks shapes). Called from Python code (tests, ``.py_func``),
+the three functions dispatch on the argument's type to the registered Python implementations.
+
+Net arrays: ``net = (fares, leg_ptr, leg_list)``; product j uses legs
+``leg_list[leg_ptr[j]:leg_ptr[j+1]]``. Book arrays: ``book = (seats, revenue, accepted, lost,
+memo, next_period)``; ``lost[k, c]`` counts customers of type c who bought nothing.
 """
 
 from __future__ import annotations
 
-from numba import njit
+from collections.abc import Callable
 
-FCFS = 0
-BID_PRICE = 1
-TABLE = 2
-NESTED = 3
-EXACT = 4
+from numba import njit, types
+from numba.extending import overload
 
-#: Control name (as in ``Tags.control``) -> kernel code.
-CONTROL_CODES = {"fcfs": FCFS, "bid_price": BID_PRICE, "table": TABLE, "nested": NESTED,
-                 "exact": EXACT}
-
-#: Relative slack of the bid-price test ``f_j >= sum of bid prices`` (rounding of solver output).
+#: Relative slack of the bid-price test ``f_j >= sum of bid prices`` (rounding of solver output):
+#: LP duals of a product the LP takes partially sum to its fare exactly in exact arithmetic but
+#: may come back one ulp above it, and the rule must still accept that product.
 ACCEPT_TOLERANCE = 1e-9
 
+_OFFERS: dict[type, Callable] = {}
+_ON_SALE: dict[type, Callable] = {}
+_CHOOSE: dict[type, Callable] = {}
 
+
+# ---------------------------------------------------------------- the extension points
+def control_offers(ctrl, k, t, j, seats, memo, net):
+    """Whether the control ``ctrl`` offers product j (seats already checked); see the module doc."""
+    return _OFFERS[type(ctrl)](ctrl, k, t, j, seats, memo, net)
+
+
+def control_records_sale(ctrl, k, j, memo, net):
+    """Update the control's per-path memory after a sale of product j on path k."""
+    impl = _ON_SALE.get(type(ctrl))
+    if impl is not None:
+        impl(ctrl, k, j, memo, net)
+
+
+def customer_chooses(dem, ctrl, k, t, c, u, seats, memo, net):
+    """The product a customer of type c buys on path k in period t, or -1."""
+    return _CHOOSE[type(dem)](dem, ctrl, k, t, c, u, seats, memo, net)
+
+
+def _is_named(ty, cls: type) -> bool:
+    return isinstance(ty, types.BaseNamedTuple) and ty.instance_class is cls
+
+
+def _no_memory(ctrl, k, j, memo, net):
+    return None
+
+
+def register_control_kernel(arrays_type: type, offers: Callable, on_sale: Callable | None = None
+                            ) -> None:
+    """Make ``offers`` (and ``on_sale``) the kernel functions of controls whose arrays are a
+    ``NamedTuple`` of class ``arrays_type``. Both are plain Python functions numba can compile."""
+    _OFFERS[arrays_type] = offers
+    if on_sale is not None:
+        _ON_SALE[arrays_type] = on_sale
+
+    @overload(control_offers, inline="always")
+    def _offers(ctrl, k, t, j, seats, memo, net):
+        if _is_named(ctrl, arrays_type):
+            return offers
+
+    @overload(control_records_sale, inline="always")
+    def _records(ctrl, k, j, memo, net):
+        if _is_named(ctrl, arrays_type):
+            return on_sale if on_sale is not None else _no_memory
+
+
+def register_demand_kernel(data_type: type, choose: Callable) -> None:
+    """Make ``choose`` the kernel function of demand kinds whose kernel data is a ``NamedTuple``
+    of class ``data_type``."""
+    _CHOOSE[data_type] = choose
+
+    @overload(customer_chooses, inline="always")
+    def _choose(dem, ctrl, k, t, c, u, seats, memo, net):
+        if _is_named(dem, data_type):
+            return choose
+
+
+# ---------------------------------------------------------------- shared pieces
 @njit(cache=True, inline="always")
 def seats_free(seats, k, leg_list, lo, hi):
     """True when path k has a seat left on every leg ``leg_list[lo:hi]``."""
@@ -55,127 +116,63 @@ def clears_bid_prices(fare, bid_sum):
 
 
 @njit(cache=True, inline="always")
-def static_bid_sum(bid, leg_list, lo, hi):
-    s = 0.0
-    for q in range(lo, hi):
-        s += bid[leg_list[q]]
-    return s
-
-
-@njit(cache=True, inline="always")
-def table_bid_sum(table, row, seats, k, leg_list, lo, hi):
-    s = 0.0
-    for q in range(lo, hi):
-        i = leg_list[q]
-        s += table[row, seats[k, i], i]
-    return s
-
-
-@njit(cache=True, inline="always")
-def nested_open(limit, bucket, sold, k, j, leg_list, lo, hi):
-    """True when bucket ``bucket[i, j]`` still has room on every leg i of product j."""
-    n_buckets = limit.shape[1]
-    for q in range(lo, hi):
-        i = leg_list[q]
-        b = bucket[i, j]
-        if b < 0:
-            return False
-        taken = 0
-        for bb in range(b, n_buckets):
-            taken += sold[k, i, bb]
-        if taken + 1 > limit[i, b]:
-            return False
-    return True
-
-
-@njit(cache=True, inline="always")
-def exact_accepts(bits, row, strides, seats, k, j):
-    s = 0
-    for i in range(strides.size):
-        s += seats[k, i] * strides[i]
-    return (bits[row, s, j >> 3] >> (j & 7)) & 1 == 1
-
-
-@njit(cache=True, inline="always")
-def accepts(code, k, t, j, fares, leg_ptr, leg_list, seats, sold, t0, bid, table, limit, bucket,
-            bits, strides):
-    """Whether path k accepts a request for product j in period t (seats checked first)."""
-    lo = leg_ptr[j]
-    hi = leg_ptr[j + 1]
-    if not seats_free(seats, k, leg_list, lo, hi):
+def offered(ctrl, k, t, j, seats, memo, net):
+    """Product j is on offer: a seat on each of its legs, and the control opens it."""
+    leg_ptr = net[1]
+    if not seats_free(seats, k, net[2], leg_ptr[j], leg_ptr[j + 1]):
         return False
-    if code == BID_PRICE:
-        return clears_bid_prices(fares[j], static_bid_sum(bid, leg_list, lo, hi))
-    if code == TABLE:
-        return clears_bid_prices(fares[j], table_bid_sum(table, t - t0, seats, k, leg_list, lo, hi))
-    if code == NESTED:
-        return nested_open(limit, bucket, sold, k, j, leg_list, lo, hi)
-    if code == EXACT:
-        return exact_accepts(bits, t - t0, strides, seats, k, j)
-    return True
+    return control_offers(ctrl, k, t, j, seats, memo, net)
 
 
 @njit(cache=True, inline="always")
-def sell(k, j, fares, leg_ptr, leg_list, bucket, seats, revenue, accepted, sold, track_buckets):
-    """Book one unit of product j on path k: seats, revenue, counts (and bucket sales)."""
+def sell(k, j, seats, revenue, accepted, net):
+    """Book one unit of product j on path k: seats, revenue and the sales count."""
+    fares, leg_ptr, leg_list = net
     for q in range(leg_ptr[j], leg_ptr[j + 1]):
-        i = leg_list[q]
-        seats[k, i] -= 1
-        if track_buckets:
-            sold[k, i, bucket[i, j]] += 1
+        seats[k, leg_list[q]] -= 1
     revenue[k] += fares[j]
     accepted[k, j] += 1
 
 
 @njit(cache=True, inline="always")
-def replay_loop(code, streams, paths, stop, stop_after_sale, net, ctrl, book):
-    """The request loop of :func:`run_requests` for one control ``code``.
+def flat_state(seats, k, strides):
+    s = 0
+    for i in range(strides.size):
+        s += seats[k, i] * strides[i]
+    return s
 
-    Inlined with ``code`` a constant, so the compiler drops the other controls' branches (a
-    run-time code made the loop about 7x slower).
+
+# ---------------------------------------------------------------- the loop
+@njit(cache=True)
+def replay_paths(ctrl, dem, customer, uniform, paths, stop, stop_after_sale, net, book, trace,
+                 strides):
+    """Replay periods ``next_period[k] .. stop-1`` of every path k in ``paths`` under ``ctrl``.
+
+    Updates the book arrays in place. With ``stop_after_sale`` a path halts right after its first
+    sale (``next_period`` is then the period after it), so the caller can recompute the control
+    from the new state. When ``trace`` is ``(paths, T)`` (not ``(0, 0)``), ``trace[k, t]``
+    receives the flat state ``sum_i seats_i * strides_i`` at the start of period t.
     """
-    fares, leg_ptr, leg_list = net
-    t0, bid, table, limit, bucket, bits, strides = ctrl
-    seats, revenue, accepted, rejected, sold, next_period = book
-    track = code == NESTED
+    seats, revenue, accepted, lost, memo, next_period = book
+    tracing = trace.size > 0
+    choosing = uniform.size > 0
     for q in range(paths.size):
         k = paths[q]
         t = next_period[k]
         while t < stop:
-            j = streams[k, t]
+            if tracing:
+                trace[k, t] = flat_state(seats, k, strides)
+            c = customer[k, t]
+            u = uniform[k, t] if choosing else 0.0
             t += 1
-            if j < 0:
+            if c < 0:
                 continue
-            if accepts(code, k, t - 1, j, fares, leg_ptr, leg_list, seats, sold, t0, bid, table,
-                       limit, bucket, bits, strides):
-                sell(k, j, fares, leg_ptr, leg_list, bucket, seats, revenue, accepted, sold, track)
+            j = customer_chooses(dem, ctrl, k, t - 1, c, u, seats, memo, net)
+            if j >= 0:
+                sell(k, j, seats, revenue, accepted, net)
+                control_records_sale(ctrl, k, j, memo, net)
                 if stop_after_sale:
                     break
             else:
-                rejected[k, j] += 1
+                lost[k, c] += 1
         next_period[k] = t
-
-
-@njit(cache=True)
-def run_requests(streams, paths, stop, stop_after_sale, code, fares, leg_ptr, leg_list, t0, bid,
-                 table, limit, bucket, bits, strides, seats, revenue, accepted, rejected, sold,
-                 next_period):
-    """Replay periods ``next_period[k] .. stop-1`` of every path k in ``paths`` under one control.
-
-    Updates ``seats``, ``revenue``, ``accepted``, ``rejected``, ``sold`` and ``next_period`` in
-    place. With ``stop_after_sale`` a path halts right after its first sale (``next_period`` is
-    then the period after it), so the caller can recompute the control from the new state.
-    """
-    net = (fares, leg_ptr, leg_list)
-    ctrl = (t0, bid, table, limit, bucket, bits, strides)
-    book = (seats, revenue, accepted, rejected, sold, next_period)
-    if code == BID_PRICE:
-        replay_loop(BID_PRICE, streams, paths, stop, stop_after_sale, net, ctrl, book)
-    elif code == TABLE:
-        replay_loop(TABLE, streams, paths, stop, stop_after_sale, net, ctrl, book)
-    elif code == NESTED:
-        replay_loop(NESTED, streams, paths, stop, stop_after_sale, net, ctrl, book)
-    elif code == EXACT:
-        replay_loop(EXACT, streams, paths, stop, stop_after_sale, net, ctrl, book)
-    else:
-        replay_loop(FCFS, streams, paths, stop, stop_after_sale, net, ctrl, book)

@@ -24,7 +24,7 @@ import numpy as np
 from rmkit.errors import InputError, param_error
 from rmkit.model.demand import DemandModel, check_compatible
 from rmkit.model.network import Network
-from rmkit.results import BookingState, SolveResult, Timer
+from rmkit.results import BookingState, SolveResult, StatePolicy, Timer
 
 
 @dataclass(frozen=True)
@@ -38,16 +38,30 @@ class Tags:
     small_state_space: bool = False  # only runs where the network DP state space is small
     capacity_dependent: bool = False  # bid prices depend on seats left and period
     gives_bid_prices: bool = True  # False for pure bounds (e.g. perfect hindsight)
-    control: str = "bid_price"  # how the simulator applies it: bid_price, table, nested, exact
+    control: str = "bid_price"  # the booking control (rmkit.controls) the simulator applies
+    reference: bool = False  # cheap and sure enough to solve as a yardstick (optimum or bound)
+    needs_displacement: bool = False  # counts network fares from another method's bid prices
+
+
+@dataclass(frozen=True)
+class Search:
+    """How calibration may search a setting: ``continuous`` (``LO:HI``), ``integer`` (``LO:HI``,
+    a grid) or ``choice`` (a comma-separated subset of ``choices``)."""
+
+    kind: str
+    help: str = ""
+    choices: tuple[Any, ...] = ()
 
 
 @dataclass(frozen=True)
 class Param:
-    """A solver setting: its default, the rule in words, and a check of that rule."""
+    """A solver setting: its default, the rule in words, a check of that rule, and whether (and
+    how) calibration may search it."""
 
     default: Any
     rule: str
     check: Callable[[Any], bool]
+    search: Search | None = None
 
 
 def positive_int(v: Any) -> bool:
@@ -79,11 +93,13 @@ class Problem:
 
     @property
     def probabilities(self) -> np.ndarray:
-        """Request probabilities of the periods still to come, ``(T - period, n)``."""
-        return self.demand.probabilities[self.period :]
+        """``(T - period, n)``: each product's sale probability per period still to come, with
+        every product offered (the request table of independent demand)."""
+        return self.demand.sale_probabilities(None, self.period)
 
     @property
     def demand_to_come(self) -> np.ndarray:
+        """Expected sales per product from the period solved from, every product offered."""
         return self.demand.demand_to_come(self.period)
 
 
@@ -95,6 +111,7 @@ class SolveOutput:
     status: str = "optimal"
     message: str = ""
     payload: dict[str, Any] = field(default_factory=dict)
+    policy: StatePolicy | None = None
 
 
 class Solver:
@@ -104,6 +121,8 @@ class Solver:
     tags: ClassVar[Tags] = Tags()
     citation: ClassVar[str] = ""
     params: ClassVar[Mapping[str, Param]] = {}
+    #: Demand kinds (``DemandModel.kind``) the method solves; ``solve`` refuses the others.
+    demand_kinds: ClassVar[tuple[str, ...]] = ("independent",)
     #: Error raised when :meth:`accepts` refuses a problem (a size refusal sets ProblemTooLargeError).
     refusal: ClassVar[type[InputError]] = InputError
 
@@ -138,6 +157,25 @@ class Solver:
         """``None`` when the method can run on this problem, else the reason it cannot."""
         return None
 
+    def kind_refusal(self, demand: DemandModel) -> str | None:
+        """``None`` when the method solves ``demand``'s kind, else the one-line reason."""
+        if demand.kind in self.demand_kinds:
+            return None
+        return (f"{self.name} solves {' or '.join(self.demand_kinds)} demand, not "
+                f"{demand.kind!r} demand")
+
+    def refusal_reason(self, network: Network, demand: DemandModel) -> str | None:
+        """Why the method cannot run on this problem (its demand kind first), else ``None``."""
+        return self.kind_refusal(demand) or self.accepts(network, demand)
+
+    def marginal_values(self, network: Network, demand: DemandModel, periods: np.ndarray,
+                        states: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Exact leg marginal values ``(K, m)`` and product opportunity costs ``(K, n)`` at the
+        pairs (``periods[q]``, ``states[q]``): ``V_{t+1}(x) - V_{t+1}(x - e_i)`` and
+        ``V_{t+1}(x) - V_{t+1}(x - A_j)``, ``+inf`` where not there. Methods tagged ``exact``
+        implement it; comparisons use it to measure other methods' bid prices."""
+        raise NotImplementedError(f"{self.name} does not give the exact value function")
+
     def solve(
         self,
         network: Network,
@@ -149,6 +187,9 @@ class Solver:
         """Solve from ``state`` (default: period 0, full capacity); never mutates its inputs."""
         params = self._checked_params()
         check_compatible(network, demand)
+        kind = self.kind_refusal(demand)
+        if kind is not None:
+            raise InputError(f"{self.name}: cannot run on this problem: {kind}")
         period, capacity = (state or BookingState()).resolve(network, demand.n_periods)
         reason = self.accepts(network, demand)
         if reason is not None:
@@ -171,6 +212,7 @@ class Solver:
             capacity=tuple(int(c) for c in capacity),
             message=out.message,
             payload=out.payload,
+            policy=out.policy,
         )
 
     def _solve(self, problem: Problem, params: dict[str, Any], seed: int | None) -> SolveOutput:

@@ -33,7 +33,7 @@ from __future__ import annotations
 
 from typing import Any
 
-from rmkit.methods.base import Param, Problem, SolveOutput, Solver, Tags, positive_int, register
+from rmkit.methods.base import Param, Problem, Search, SolveOutput, Solver, Tags, positive_int, register
 from rmkit.methods.emsrb import DISPLACEMENT_PARAMS, LAW_PARAM, solve_nested
 
 
@@ -42,14 +42,15 @@ class Davn(Solver):
     """Displacement-adjusted virtual nesting (Smith, Leimkuhler & Darrow 1992; Williamson 1992)."""
 
     name = "davn"
-    tags = Tags(heuristic=True, control="nested")
+    tags = Tags(heuristic=True, control="nested", needs_displacement=True)
     citation = (
         "B. C. Smith, J. F. Leimkuhler and R. M. Darrow (1992), Yield management at American "
         "Airlines, Interfaces 22(1):8-31; E. L. Williamson (1992), Airline Network Seat "
         "Inventory Control: Methodologies and Revenue Impacts, PhD thesis, MIT"
     )
     params = {
-        "buckets": Param(6, "an integer >= 1", positive_int),
+        "buckets": Param(6, "an integer >= 1", positive_int,
+                         Search("integer", "number of virtual buckets per leg")),
         **DISPLACEMENT_PARAMS,
         "law": LAW_PARAM,
     }

@@ -42,12 +42,21 @@ def dual_message(choice: str) -> str:
     }[choice]
 
 
+def leg_duals(problem: Problem, dual: str = "highs") -> np.ndarray:
+    """DLP leg duals at the problem's state (the displacement prices dpd and lr start from)."""
+    from rmkit.methods.shared.network_lp import NetworkLP
+
+    sol = NetworkLP(problem.network, dual=dual).solve(problem.capacity, problem.demand_to_come)
+    raise_or_warn("dlp", sol.status, sol.message)
+    return np.asarray(sol.bid_price, dtype=np.float64)
+
+
 @register
 class DeterministicLP(Solver):
     """Deterministic linear program (Talluri & van Ryzin 2004; Williamson 1992); leg duals."""
 
     name = "dlp"
-    tags = Tags(upper_bound=True, control="bid_price")
+    tags = Tags(upper_bound=True, control="bid_price", reference=True)
     citation = (
         "K. T. Talluri and G. J. van Ryzin (2004), The Theory and Practice of Revenue "
         "Management, Springer, sec. 3.3.1; E. L. Williamson (1992), Airline Network Seat "

@@ -36,10 +36,10 @@ from typing import Any
 import numpy as np
 
 from rmkit.methods.base import Param, Problem, SolveOutput, Solver, Tags, one_of, positive_int, register
+from rmkit.methods.dlp import leg_duals
 from rmkit.methods.shared.leg_dp import bid_prices_at, leg_tables, leg_values, value_at
 from rmkit.methods.shared.network_lp import DUAL_CHOICES
 from rmkit.model.network import Network
-from rmkit.results import BookingState
 
 
 def displaced_fares(network: Network, duals: np.ndarray) -> np.ndarray:
@@ -83,13 +83,9 @@ class DPDecomposition(Solver):
     }
 
     def _solve(self, problem: Problem, params: dict[str, Any], seed: int | None) -> SolveOutput:
-        from rmkit.methods.base import get_solver
-
         network, x = problem.network, problem.capacity
         prob = problem.probabilities
-        state = BookingState(problem.period, tuple(int(c) for c in x))
-        dlp = get_solver("dlp", dual=params["dual"]).solve(network, problem.demand, state=state)
-        duals = np.array(dlp["bid_price"], dtype=np.float64)
+        duals = leg_duals(problem, params["dual"])
         for _ in range(params["iterations"]):
             fares = displaced_fares(network, duals)
             values = leg_values(prob, np.broadcast_to(fares[:, None, :], (network.n_legs,

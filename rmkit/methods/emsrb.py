@@ -46,7 +46,17 @@ from typing import Any
 
 import numpy as np
 
-from rmkit.methods.base import Param, Problem, SolveOutput, Solver, Tags, non_negative_int, one_of, register
+from rmkit.methods.base import (
+    Param,
+    Problem,
+    Search,
+    SolveOutput,
+    Solver,
+    Tags,
+    non_negative_int,
+    one_of,
+    register,
+)
 from rmkit.methods.shared.fare_basis import (
     FARE_BASES,
     LegClasses,
@@ -63,15 +73,18 @@ def is_method_name(v: Any) -> bool:
     return isinstance(v, str) and bool(v)
 
 
-LAW_PARAM = Param("poisson", "one of 'poisson', 'normal'", one_of(*LAWS))
+LAW_PARAM = Param("poisson", "one of 'poisson', 'normal'", one_of(*LAWS),
+                  Search("choice", "demand law of the leg heuristic", LAWS))
 DISPLACEMENT_PARAMS = {
-    "displacement_iterations": Param(0, "an integer >= 0", non_negative_int),
+    "displacement_iterations": Param(0, "an integer >= 0", non_negative_int,
+                                     Search("integer", "displacement (network fare) iterations")),
     "displacement_method": Param(
         "dlp", "the name of a registered method that gives leg bid prices", is_method_name
     ),
 }
 FARE_BASIS_PARAM = Param(
-    "prorated", "one of " + ", ".join(repr(b) for b in FARE_BASES), one_of(*FARE_BASES)
+    "prorated", "one of " + ", ".join(repr(b) for b in FARE_BASES), one_of(*FARE_BASES),
+    Search("choice", "fare a leg counts for a multi-leg product", FARE_BASES),
 )
 
 
@@ -183,7 +196,7 @@ def solve_nested(
 ) -> SolveOutput:
     """The whole nested solve shared by ``emsrb`` and ``davn``."""
     net = problem.network
-    means, variances = moments_to_come(problem.demand.probabilities)
+    means, variances = moments_to_come(problem.demand.sale_probabilities())
     mean, var = means[problem.period], variances[problem.period]
     law = params["law"]
 
@@ -227,7 +240,7 @@ class EmsrbNested(Solver):
     """EMSR-b nested booking limits per leg (Belobaba 1987; Belobaba 1992)."""
 
     name = "emsrb"
-    tags = Tags(heuristic=True, control="nested")
+    tags = Tags(heuristic=True, control="nested", needs_displacement=True)
     citation = (
         "P. P. Belobaba (1992), Optimal vs. heuristic methods for nested seat allocation, "
         "Proceedings of the AGIFORS Reservations Control Study Group; P. P. Belobaba (1987), "

@@ -38,7 +38,7 @@ from typing import Any
 
 import numpy as np
 
-from rmkit.methods.base import Param, Problem, SolveOutput, Solver, Tags, register
+from rmkit.methods.base import Param, Problem, Search, SolveOutput, Solver, Tags, register
 from rmkit.methods.emsrb import (
     DISPLACEMENT_PARAMS,
     FARE_BASIS_PARAM,
@@ -68,7 +68,7 @@ class EmsrbHeuristicBidPrices(Solver):
     """Heuristic EMSR-b bid prices by period and seats left (Belobaba 1992; Littlewood 1972)."""
 
     name = "emsrb-heuristic"
-    tags = Tags(heuristic=True, capacity_dependent=True, control="table")
+    tags = Tags(heuristic=True, capacity_dependent=True, control="table", needs_displacement=True)
     citation = (
         "P. P. Belobaba (1992), Optimal vs. heuristic methods for nested seat allocation, "
         "Proceedings of the AGIFORS Reservations Control Study Group"
@@ -77,14 +77,15 @@ class EmsrbHeuristicBidPrices(Solver):
         "fare_basis": FARE_BASIS_PARAM,
         **DISPLACEMENT_PARAMS,
         "law": LAW_PARAM,
-        "multiplier": Param(1.0, "a finite number >= 0", non_negative_float),
+        "multiplier": Param(1.0, "a finite number >= 0", non_negative_float,
+                            Search("continuous", "multiplier on the seat values")),
     }
 
     def _solve(self, problem: Problem, params: dict[str, Any], seed: int | None) -> SolveOutput:
         net = problem.network
         t0, x = problem.period, problem.capacity
         law = params["law"]
-        means, variances = moments_to_come(problem.demand.probabilities)
+        means, variances = moments_to_come(problem.demand.sale_probabilities())
         # a request in period t is valued against the demand after it: rows t+1 .. T
         after_mean, after_var = means[t0 + 1 :], variances[t0 + 1 :]
         legs = np.arange(net.n_legs)

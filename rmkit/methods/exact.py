@@ -15,13 +15,14 @@ Result variables
 ``opportunity_cost``
     ``V_{t0+1}(x0) - V_{t0+1}(x0 - A_j)``; ``+inf`` when product j cannot be sold from x0.
 
-Payload (for the simulator's replay of the optimal policy; not exported)
--------------------------------------------------------------------------
-``decision_bits``
+The optimal policy (``result.policy``, a :class:`~rmkit.results.StatePolicy`; not exported)
+------------------------------------------------------------------------------------------
+``bits``
     uint8 ``(T - t0, n_states, ceil(n/8))``: bit ``j % 8`` of byte ``j // 8`` is 1 iff accepting
     product j in period ``t0 + k`` at flat state s is optimal (feasible and
-    ``f_j >= V_{t+1}(x) - V_{t+1}(x - A_j)``, ties accept). Absent when ``keep_decisions=False``.
-``state_strides``
+    ``f_j >= V_{t+1}(x) - V_{t+1}(x - A_j)``, ties accept). Empty (no period) when
+    ``keep_decisions=False``.
+``strides``
     int64 ``(n_legs,)`` row-major strides over ``(c_0+1, ..., c_{m-1}+1)`` of the network's FULL
     capacities: ``s = sum_i x_i * stride_i``.
 ``values``
@@ -43,11 +44,13 @@ from rmkit.methods.base import Param, Problem, SolveOutput, Solver, Tags, positi
 from rmkit.methods.shared.network_dp import (
     DEFAULT_MAX_MEMORY_GB,
     flat_index,
+    marginal_values,
     solve_network_dp,
     too_large_reason,
 )
 from rmkit.model.demand import DemandModel
 from rmkit.model.network import Network
+from rmkit.results import StatePolicy
 
 
 def _is_bool(v: Any) -> bool:
@@ -59,7 +62,8 @@ class ExactDP(Solver):
     """Exact network DP by backward induction (Talluri & van Ryzin 2004, section 3.1)."""
 
     name = "exact"
-    tags = Tags(exact=True, upper_bound=False, small_state_space=True, control="exact")
+    tags = Tags(exact=True, upper_bound=False, small_state_space=True, control="decisions",
+                reference=True)
     citation = (
         "K. T. Talluri and G. J. van Ryzin (2004), The Theory and Practice of Revenue "
         "Management, Springer, sec. 3.1 (the network dynamic program)"
@@ -76,6 +80,11 @@ class ExactDP(Solver):
             network, demand.n_periods, float(params["max_memory_gb"]), params["keep_decisions"]
         )
 
+    def marginal_values(self, network: Network, demand: DemandModel, periods: np.ndarray,
+                        states: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        params = self._checked_params()
+        return marginal_values(network, demand, periods, states, float(params["max_memory_gb"]))
+
     def _solve(self, problem: Problem, params: dict[str, Any], seed: int | None) -> SolveOutput:
         dp = solve_network_dp(
             problem.network,
@@ -85,14 +94,14 @@ class ExactDP(Solver):
             max_memory_gb=float(params["max_memory_gb"]),
         )
         x0 = problem.capacity
-        payload: dict[str, Any] = {"state_strides": dp.strides, "values": dp.values}
-        if dp.decision_bits is not None:
-            payload["decision_bits"] = dp.decision_bits
+        n_bytes = (problem.network.n_products + 7) // 8
+        bits = (dp.decision_bits if dp.decision_bits is not None
+                else np.zeros((0, dp.values.size, n_bytes), dtype=np.uint8))
         return SolveOutput(
             variables={
                 "value": np.float64(dp.values[flat_index(x0, dp.strides)]),
                 "bid_price": dp.bid_prices_at(x0),
                 "opportunity_cost": dp.opportunity_costs_at(x0),
             },
-            payload=payload,
+            policy=StatePolicy(bits, dp.strides, problem.period, dp.values),
         )

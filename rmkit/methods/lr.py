@@ -295,7 +295,7 @@ class LagrangianRelaxation(Solver):
     """
 
     name = "lr"
-    tags = Tags(upper_bound=True, capacity_dependent=True, control="table")
+    tags = Tags(upper_bound=True, capacity_dependent=True, control="table", reference=True)
     citation = (
         "H. Topaloglu (2009), Using Lagrangian relaxation to compute capacity-dependent bid "
         "prices in network revenue management, Operations Research 57(3):637-649"
@@ -325,12 +325,9 @@ class LagrangianRelaxation(Solver):
 
     @staticmethod
     def _dual_start(problem: Problem) -> np.ndarray:
-        from rmkit.methods.base import get_solver
-        from rmkit.results import BookingState
+        from rmkit.methods.dlp import leg_duals
 
-        state = BookingState(problem.period, tuple(int(c) for c in problem.capacity))
-        duals = get_solver("dlp").solve(problem.network, problem.demand, state=state)["bid_price"]
-        return dual_split(problem.network, duals, problem.probabilities.shape[0])
+        return dual_split(problem.network, leg_duals(problem), problem.probabilities.shape[0])
 
     def _period_zero_multipliers(self, network, demand, params: dict[str, Any]) -> np.ndarray:
         key = tuple(sorted(_run_settings(params).items()))

@@ -55,7 +55,7 @@ from typing import Any
 import numpy as np
 
 from rmkit.errors import ProblemTooLargeError
-from rmkit.methods.base import Param, Problem, SolveOutput, Solver, Tags, one_of, register
+from rmkit.methods.base import Param, Problem, Search, SolveOutput, Solver, Tags, one_of, register
 from rmkit.methods.dlp import TIME_LIMIT_RULE
 from rmkit.methods.shared.network_lp import (
     FEASIBILITY_TOL,
@@ -133,7 +133,8 @@ class ProbabilisticNLP(Solver):
         "of Operational Research 137(1):72-92"
     )
     params = {
-        "law": Param("poisson", "one of 'poisson', 'normal'", one_of(*LAWS)),
+        "law": Param("poisson", "one of 'poisson', 'normal'", one_of(*LAWS),
+                     Search("choice", "demand law of the program", LAWS)),
         "time_limit": Param(None, TIME_LIMIT_RULE, time_limit_ok),
     }
 

@@ -52,7 +52,7 @@ from typing import Any
 import numpy as np
 
 from rmkit.errors import InputError, param_error
-from rmkit.model.demand import DemandModel
+from rmkit.model.independent import IndependentDemand
 from rmkit.model.network import Leg, Network, Product
 from rmkit.model.scenario import Scenario, ScenarioInfo, scenario_from_model
 
@@ -144,7 +144,7 @@ def _finish(
     fitted = tuple(Leg(id=leg.id, capacity=int(c), name=leg.name)
                    for leg, c in zip(legs, caps, strict=True))
     network = Network(legs=fitted, products=tuple(products), name=name)
-    demand = DemandModel(p)
+    demand = IndependentDemand(p)
     base = scenario_from_model(network, demand, name)
     spec = base.spec.model_copy(update={"scenario": ScenarioInfo(name=name, description=description)})
     return Scenario(network=network, demand=demand, spec=spec, source=name)
@@ -307,7 +307,7 @@ def line_network(
                 origin=place_name(o), destination=place_name(d),
             ))
     try:
-        curve = DemandModel.from_booking_curves(t_count, expected, shapes)
+        curve = IndependentDemand.from_booking_curves(t_count, expected, shapes)
     except InputError as err:
         raise InputError(f"{owner}: {err}, or a lower 'arrival'") from None
     settings = {"legs": k, "alpha": alpha, "classes": m, "ratio": ratio, "periods": t_count,

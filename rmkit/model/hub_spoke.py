@@ -18,7 +18,7 @@ from pathlib import Path
 import numpy as np
 
 from rmkit.errors import InputError
-from rmkit.model.demand import DemandModel
+from rmkit.model.independent import IndependentDemand
 from rmkit.model.network import Leg, Network, Product
 
 _PAIR = re.compile(r"\[\s*(\d+)\s+(\d+)\s+(\d+)\s*\]\s+([0-9eE.+-]+)")
@@ -61,10 +61,8 @@ def _sections(text: str) -> list[list[tuple[int, str]]]:
     return sections
 
 
-def parse_hub_spoke(text: str, name: str = ""):
-    """Parse the benchmark text into a :class:`~rmkit.model.scenario.Scenario`."""
-    from rmkit.model.scenario import scenario_from_model
-
+def parse_hub_spoke(text: str, name: str = "") -> tuple[Network, IndependentDemand]:
+    """Parse the benchmark text into the network and its (independent) demand model."""
     sec = _sections(text)
     if len(sec) < 4:
         raise InputError(
@@ -142,22 +140,26 @@ def parse_hub_spoke(text: str, name: str = ""):
                 raise InputError(f"line {number}: unknown product [ {o} {d} {c} ]")
             p[t, index[key]] = float(prob)
     try:
-        demand = DemandModel(p)
+        demand = IndependentDemand(p)
     except InputError as err:
         raise InputError(f"probabilities: {err}") from None
-    return scenario_from_model(network, demand, name)
+    return network, demand
 
 
-def read_hub_spoke(path: str | Path):
-    """Read ``rm_<T>_<N>_<alpha>_<kappa>.txt[.gz]`` into a scenario."""
+def read_hub_spoke(path: str | Path) -> tuple[Network, IndependentDemand]:
+    """Read ``rm_<T>_<N>_<alpha>_<kappa>.txt[.gz]`` into its network (named after the file) and
+    demand; :func:`rmkit.model.scenario.load_scenario` wraps them in a scenario."""
     p = Path(path)
-    name = p.name
+    return parse_hub_spoke(_read_text(p), name=instance_label(p))
+
+
+def instance_label(path: str | Path) -> str:
+    """The file name without ``.txt`` / ``.txt.gz``."""
+    name = Path(path).name
     for suffix in (".gz", ".txt"):
         if name.lower().endswith(suffix):
             name = name[: -len(suffix)]
-    scen = parse_hub_spoke(_read_text(p), name=name)
-    object.__setattr__(scen, "source", str(p))
-    return scen
+    return name
 
 
 def parse_instance_name(name: str) -> dict[str, float]:

@@ -16,21 +16,17 @@ fresh-sample figures are an honest estimate of what tuning buys.
 
 Tunable settings
 ----------------
-``multiplier``
-    Scales the heuristic's bid prices (static or table); ``LO:HI`` with ``0 <= LO < HI``. Uses the
-    method's own ``multiplier`` setting when it has one, else scales its results.
-``fare_basis``
-    The fare a leg counts for a multi-leg product: ``full``, ``prorated`` or ``network``.
-``displacement_iterations``, ``buckets``, ``resolve``
-    Whole numbers ``LO:HI`` (a grid of at most :data:`MAX_GRID` points); ``resolve`` is the
-    number of equally spaced re-optimisations during the horizon.
-``law``
-    The demand law of the leg heuristics: ``poisson`` or ``normal``.
+What may be searched is a fact of the method and its control, never a list kept here: every
+method setting whose ``Param`` carries a ``Search`` (fare basis, displacement iterations, DAVN
+buckets, demand law ...), plus two settings of the policy: ``resolve`` (the number of equally
+spaced re-optimisations, whole numbers ``LO:HI``) and ``multiplier`` (on the bid prices of a
+control that applies them, ``LO:HI`` with ``0 <= LO < HI``; a method's own ``multiplier`` setting
+is used when it has one, else its results are scaled). Whole-number ranges are searched on a grid
+of at most :data:`MAX_GRID` points; choices are given as ``a,b``.
 """
 
 from __future__ import annotations
 
-import dataclasses
 import itertools
 import math
 from collections.abc import Mapping, Sequence
@@ -40,8 +36,10 @@ from typing import Any
 import numpy as np
 
 from rmkit.errors import InputError
+from rmkit.methods.base import Search, Solver
 from rmkit.model.demand import DemandModel, check_compatible
 from rmkit.model.network import Network
+from rmkit.workflows.reference import Reference, solve_reference
 
 #: Most points of an integer grid (evenly spaced, ends included, when the range is wider).
 MAX_GRID = 11
@@ -49,35 +47,28 @@ MAX_GRID = 11
 COARSE_POINTS = 9
 
 
-@dataclass(frozen=True)
-class Tunable:
-    kind: str  # "continuous", "integer" or "choice"
-    help: str
-    choices: tuple[str, ...] = ()
+#: Settings of the policy rather than of the method: how often it is re-solved, and a multiplier on
+#: the bid prices of a control that applies them (``Control.scalable``).
+RESOLVE = Search("integer", "re-optimisations during the horizon")
+MULTIPLIER = Search("continuous", "multiplier on the bid prices")
 
 
-TUNABLES: dict[str, Tunable] = {
-    "multiplier": Tunable("continuous", "multiplier on the bid prices, LO:HI"),
-    "fare_basis": Tunable("choice", "fare a leg counts for a multi-leg product",
-                          ("full", "prorated", "network")),
-    "displacement_iterations": Tunable("integer", "displacement (network fare) iterations, LO:HI"),
-    "buckets": Tunable("integer", "number of DAVN virtual buckets, LO:HI"),
-    "resolve": Tunable("integer", "re-optimisations during the horizon, LO:HI"),
-    "law": Tunable("choice", "demand law of the leg heuristic", ("poisson", "normal")),
-}
-SCALABLE_CONTROLS = ("bid_price", "table")
+def tunables(solver: Solver) -> dict[str, Search]:
+    """Settings of ``solver``'s policy that calibration can search, and how."""
+    from rmkit.controls import get_control
+
+    found = {"resolve": RESOLVE}
+    if get_control(solver.tags.control).scalable:
+        found["multiplier"] = MULTIPLIER
+    found.update({name: p.search for name, p in solver.params.items() if p.search is not None})
+    return dict(sorted(found.items()))
 
 
-def tunable_names(solver: Any) -> list[str]:
-    """Settings of ``solver`` that calibration can search."""
-    names = ["resolve"]
-    if "multiplier" in solver.params or solver.tags.control in SCALABLE_CONTROLS:
-        names.append("multiplier")
-    names += [p for p in solver.params if p in TUNABLES and p not in names]
-    return sorted(names)
+def tunable_names(solver: Solver) -> list[str]:
+    return list(tunables(solver))
 
 
-def parse_range(name: str, text: str, tunable: Tunable) -> tuple[str, Any]:
+def parse_range(name: str, text: str, tunable: Search) -> tuple[str, Any]:
     """``LO:HI`` for numbers, ``a,b`` for choices; a single value fixes the setting."""
     text = str(text).strip()
     if tunable.kind == "choice":
@@ -129,7 +120,7 @@ class Calibration:
     tuned: Evaluation
     default_fresh: Evaluation
     tuned_fresh: Evaluation
-    reference: tuple[str, str, float]
+    reference: Reference
     trail: list[Evaluation]
 
     def improvement_fresh(self) -> tuple[float, float, float, float]:
@@ -140,7 +131,7 @@ class Calibration:
 
     def to_dict(self) -> dict[str, Any]:
         mean, se, lo, hi = self.improvement_fresh()
-        kind, method, value = self.reference
+        kind, method, value = self.reference.kind, self.reference.method, self.reference.value
 
         def row(tuning: Evaluation, fresh: Evaluation) -> dict[str, Any]:
             return {"setting": tuning.setting, "revenue": tuning.mean, "stderr": tuning.stderr,
@@ -167,7 +158,7 @@ class Calibration:
 
 @dataclass
 class ScaledPolicy:
-    """A method's policy with its bid prices multiplied by a constant (results it gives scaled)."""
+    """A method's policy with the bid prices its control applies multiplied by a constant."""
 
     inner: Any
     multiplier: float
@@ -175,14 +166,17 @@ class ScaledPolicy:
 
     def __post_init__(self) -> None:
         self.label = self.label or f"{self.inner.label} x {self.multiplier:g}"
+        if not self.inner.control.scalable:
+            raise InputError(f"multiplier: the {self.inner.control.name!r} control of "
+                             f"{self.inner.label!r} applies no bid prices to scale")
 
     @property
-    def control(self) -> str:
+    def control(self):
         return self.inner.control
 
     @property
-    def adaptive(self) -> bool:
-        return self.inner.adaptive
+    def resolvable(self) -> bool:
+        return self.inner.resolvable
 
     @property
     def parameters(self) -> dict[str, Any]:
@@ -190,15 +184,7 @@ class ScaledPolicy:
 
     def control_at(self, network, demand, period, capacity, seed):
         result = self.inner.control_at(network, demand, period, capacity, seed)
-        scaled = {k: (_scale(v, self.multiplier) if k in ("bid_price", "bid_price_table")
-                      else v) for k, v in result.variables.items()}
-        return dataclasses.replace(result, variables=scaled)
-
-
-def _scale(values: np.ndarray, multiplier: float) -> np.ndarray:
-    """Bid prices times ``multiplier``; +inf (no seat) and NaN (above capacity) stay as they are."""
-    v = np.array(values, dtype=np.float64)
-    return np.multiply(v, multiplier, out=v, where=np.isfinite(v))
+        return self.control.scaled(result, self.multiplier)
 
 
 class _Objective:
@@ -284,7 +270,8 @@ def calibrate(
     if not ranges:
         raise InputError(f"--param: give at least one setting to tune; valid for {heuristic}: "
                          f"{', '.join(tunable_names(solver))}")
-    valid = tunable_names(solver)
+    searchable = tunables(solver)
+    valid = list(searchable)
     searched: dict[str, Any] = {}
     continuous: dict[str, tuple[float, float]] = {}
     discrete: dict[str, tuple] = {}
@@ -292,7 +279,7 @@ def calibrate(
         if name not in valid:
             raise InputError(f"--param: {heuristic} has no tunable setting {name!r}; valid "
                              f"settings: {', '.join(valid)}")
-        kind, values = parse_range(name, text, TUNABLES[name])
+        kind, values = parse_range(name, text, searchable[name])
         (continuous if kind == "continuous" else discrete)[name] = values
         searched[name] = values
     default_setting = {"resolve": int(resolve)}
@@ -311,7 +298,7 @@ def calibrate(
             best = ev
     assert best is not None
     fresh = seed + 1 if fresh_seed is None else int(fresh_seed)
-    ref = _reference(network, demand, seed) if reference else ("none", "", math.nan)
+    ref = solve_reference(network, demand, seed) if reference else Reference.none()
     return Calibration(
         heuristic=heuristic, paths=int(paths), seed=int(seed), fresh_seed=fresh,
         searched=searched, default=default, tuned=best,
@@ -351,23 +338,3 @@ def _best_continuous(objective: _Objective, point: dict[str, Any],
                   if all(e.setting.get(k) == v for k, v in point.items())
                   and all(n in e.setting for n in names)]
     return max(candidates + [best], key=lambda e: e.mean)
-
-
-def _reference(network: Network, demand: DemandModel, seed: int) -> tuple[str, str, float]:
-    """The exact optimum when the DP fits, else the lowest of the dlp and lr upper bounds."""
-    from rmkit.errors import SolverError
-    from rmkit.methods.base import get_solver
-
-    exact = get_solver("exact")
-    if exact.accepts(network, demand) is None:
-        return "optimum", "exact", exact.solve(network, demand, seed=seed).value
-    bounds = []
-    for name in ("dlp", "lr"):
-        try:
-            bounds.append((get_solver(name).solve(network, demand, seed=seed).value, name))
-        except (SolverError, InputError):
-            continue
-    if not bounds:
-        return "none", "", math.nan
-    value, name = min(bounds)
-    return "best bound", name, value

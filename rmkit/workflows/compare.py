@@ -57,9 +57,10 @@ import numpy as np
 
 from rmkit._version import __version__
 from rmkit.errors import InputError, SolverError
-from rmkit.model.demand import DemandModel, check_compatible
+from rmkit.model.demand import Arrivals, DemandModel, check_compatible
 from rmkit.model.network import Network
 from rmkit.results import SolveResult
+from rmkit.workflows.reference import Reference, best_reference
 
 if TYPE_CHECKING:  # pragma: no cover
     import xarray as xr
@@ -156,7 +157,7 @@ def run_methods(
     for name in names:
         solver = get_solver(name, **dict(settings.get(name, {})))
         run = MethodRun(name=name, kind=kind_of(solver), status="ran", solver=solver)
-        reason = solver.accepts(network, demand)
+        reason = solver.refusal_reason(network, demand)
         if reason is not None:
             run.status, run.reason = "skipped", reason
             runs.append(run)
@@ -248,63 +249,26 @@ class Visits:
         return int(self.period.size)
 
 
-def optimal_visits(
-    network: Network, demand: DemandModel, exact: SolveResult, streams: np.ndarray
-) -> Visits:
-    """States at the start of each period along ``streams`` under the exact policy, counted."""
-    from rmkit.kernels.visits import exact_trajectories
-    from rmkit.methods.shared.network_dp import grid_states
+def policy_visits(network: Network, demand: DemandModel, result: SolveResult,
+                  arrivals: Arrivals) -> Visits:
+    """States at the start of each period along ``arrivals`` under ``result``'s own control
+    (applied as solved from period 0, never re-solved), counted over paths and periods."""
+    from rmkit.workflows.policies import FixedPolicy
+    from rmkit.workflows.simulate import replay
 
-    bits = exact.payload.get("decision_bits")
-    strides = exact.payload.get("state_strides")
-    if bits is None or strides is None or exact.period != 0:
-        raise SolverError(
-            f"{exact.method}: needs the exact policy's decision_bits and state_strides solved "
-            "from period 0 to find the states it visits"
-        )
-    n_paths, n_periods = streams.shape
-    a = np.asarray(network.incidence)
-    leg_list = np.ascontiguousarray(np.nonzero(a.T)[1], dtype=np.int64)
-    leg_ptr = np.concatenate([[0], np.cumsum(a.sum(axis=0))]).astype(np.int64)
-    seats = np.tile(np.asarray(network.capacities, dtype=np.int64), (n_paths, 1))
-    flat = np.empty((n_paths, n_periods), dtype=np.int64)
-    exact_trajectories(np.ascontiguousarray(streams, dtype=np.int32),
-                       np.ascontiguousarray(bits, dtype=np.uint8),
-                       np.ascontiguousarray(strides, dtype=np.int64), leg_ptr, leg_list, seats,
-                       flat)
+    if result.period != 0:
+        raise SolverError(f"{result.method}: needs a result solved from period 0 to find the "
+                          "states its policy visits")
+    outcome = replay(network, demand, FixedPolicy(result), arrivals, seed=0, trace=True)
+    flat = outcome.trace
+    n_paths, n_periods = flat.shape
     n_states = network.state_space_size
     key = np.arange(n_periods, dtype=np.int64)[None, :] * n_states + flat
     pairs, counts = np.unique(key.ravel(), return_counts=True)
     period, state = np.divmod(pairs, n_states)
-    grid = grid_states(network.capacities)
-    return Visits(period=period, state=grid[state], weight=counts / counts.sum(), n_paths=n_paths)
-
-
-def exact_values_at(
-    network: Network, demand: DemandModel, visits: Visits, max_memory_gb: float = 4.0
-) -> tuple[np.ndarray, np.ndarray]:
-    """Exact leg marginal values ``(K, m)`` and product opportunity costs ``(K, n)`` at the visits.
-
-    ``+inf`` where the seat (or one of the product's seats) is not there.
-    """
-    from rmkit.methods.shared.network_dp import flat_index, grid_strides, solve_network_dp
-
-    strides = grid_strides(network.capacities)
-    moves = np.concatenate([np.eye(network.n_legs, dtype=np.int64),
-                            np.asarray(network.incidence, dtype=np.int64).T])  # (m + n, m)
-    x = visits.state
-    here = flat_index(x, strides)  # (K,)
-    ok = np.all(x[:, None, :] >= moves[None, :, :], axis=2)  # (K, m + n)
-    there = np.where(ok, here[:, None] - moves @ strides, here[:, None])
-    wanted = np.unique(np.concatenate([here, there.ravel()]))
-    dp = solve_network_dp(network, demand, 0, keep_decisions=False, probe=wanted,
-                          max_memory_gb=max_memory_gb)
-    values = dp.probe_values  # (T, U): V_{t+1} at the probed states
-    rows = visits.period[:, None]
-    diff = values[rows, np.searchsorted(wanted, here)[:, None]] - values[
-        rows, np.searchsorted(wanted, there)]
-    diff[~ok] = np.inf
-    return diff[:, : network.n_legs], diff[:, network.n_legs :]
+    sizes = [int(c) + 1 for c in network.capacities]
+    grid = np.stack(np.unravel_index(state, sizes), axis=1).astype(np.int64)
+    return Visits(period=period, state=grid, weight=counts / counts.sum(), n_paths=n_paths)
 
 
 def quoted_bid_prices(result: SolveResult, visits: Visits) -> np.ndarray:
@@ -429,7 +393,7 @@ class _Frame:
     exact_cost: np.ndarray | None = None
     errors_note: str = ""
     best: str = ""
-    reference: tuple[str, str, float] = ("none", "", math.nan)
+    reference: Reference = field(default_factory=Reference.none)
     extra: dict[str, Any] = field(default_factory=dict)
 
 
@@ -510,7 +474,8 @@ def compare(
         if progress:
             progress("exact values where the optimal policy goes")
         _exact_errors(frame, exact, min(visit_paths, paths), seed)
-    frame.reference = _reference([*runs, exact] if exact is not None else runs)
+    frame.reference = best_reference((r.solver, r.result) for r in [*runs, exact]
+                                     if r is not None and r.status == "ran" and r.result is not None)
     frame.best = _best_policy(runs)
     ds = _assemble(frame, runs)
     ds.attrs.update(
@@ -524,9 +489,9 @@ def compare(
             "parameters": json.dumps(
                 {r.name: r.solver.get_params() for r in runs if r.solver is not None},
                 sort_keys=True, default=str),
-            "reference_kind": frame.reference[0],
-            "reference_method": frame.reference[1],
-            "reference_value": float(frame.reference[2]),
+            "reference_kind": frame.reference.kind,
+            "reference_method": frame.reference.method,
+            "reference_value": float(frame.reference.value),
             "best_policy": frame.best,
             "errors": frame.errors_note,
             "confidence": 0.95,
@@ -540,10 +505,9 @@ def _exact_errors(frame: _Frame, exact: MethodRun, visit_paths: int, seed: int) 
     from rmkit.errors import ProblemTooLargeError
 
     net, dem = frame.network, frame.demand
-    streams = dem.sample_streams(visit_paths, seed)
     try:
-        visits = optimal_visits(net, dem, exact.result, streams)
-        leg, cost = exact_values_at(net, dem, visits)
+        visits = policy_visits(net, dem, exact.result, dem.sample_arrivals(visit_paths, seed))
+        leg, cost = exact.solver.marginal_values(net, dem, visits.period, visits.state)
     except (ProblemTooLargeError, SolverError) as err:
         frame.errors_note = f"not computed: {err}"
         return
@@ -556,33 +520,25 @@ def _exact_errors(frame: _Frame, exact: MethodRun, visit_paths: int, seed: int) 
 
 def _background_exact(network: Network, demand: DemandModel, seed: int,
                       progress: Callable[[str], None] | None) -> MethodRun | None:
-    """The exact DP as the yardstick when it fits but was not asked for (not in the table)."""
+    """A registered method that gives the optimum, as the yardstick when it fits but was not
+    asked for (it is not a row of the table)."""
     from rmkit.errors import ProblemTooLargeError
-    from rmkit.methods.base import get_solver
+    from rmkit.methods.base import load_all
 
-    solver = get_solver("exact")
-    if solver.accepts(network, demand) is not None:
-        return None
-    if progress:
-        progress("solving exact (the yardstick)")
-    try:
-        result = solver.solve(network, demand, seed=seed)
-    except (ProblemTooLargeError, SolverError):
-        return None
-    return MethodRun(name="exact", kind="optimum", status="ran", solver=solver, result=result)
-
-
-def _reference(runs: Sequence[MethodRun]) -> tuple[str, str, float]:
-    """(kind, method, value) the revenue gaps are measured against."""
-    ran = [r for r in runs if r.status == "ran" and r.result is not None]
-    for r in ran:
-        if r.kind == "optimum":
-            return "optimum", r.name, r.result.value
-    bounds = [r for r in ran if r.kind == "upper bound" and math.isfinite(r.result.value)]
-    if bounds:
-        best = min(bounds, key=lambda r: r.result.value)
-        return "best bound", best.name, best.result.value
-    return "none", "", math.nan
+    for name, cls in sorted(load_all().items()):
+        solver = cls()
+        if not (solver.tags.exact and solver.tags.reference):
+            continue
+        if solver.refusal_reason(network, demand) is not None:
+            continue
+        if progress:
+            progress(f"solving {name} (the yardstick)")
+        try:
+            result = solver.solve(network, demand, seed=seed)
+        except (ProblemTooLargeError, SolverError):
+            continue
+        return MethodRun(name=name, kind="optimum", status="ran", solver=solver, result=result)
+    return None
 
 
 def _best_policy(runs: Sequence[MethodRun]) -> str:
@@ -703,7 +659,7 @@ def _assemble(frame: _Frame, runs: Sequence[MethodRun]):
     import xarray as xr
 
     best = next((r for r in runs if r.name == frame.best), None)
-    parts = [_method_dataset(frame, r, best, frame.reference[2]) for r in runs]
+    parts = [_method_dataset(frame, r, best, frame.reference.value) for r in runs]
     ds = xr.concat(parts, dim="method", join="exact", data_vars="all", coords="minimal",
                    compat="identical")
     ds = ds.assign_coords(method=np.array([r.name for r in runs], dtype=object))

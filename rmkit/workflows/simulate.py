@@ -1,9 +1,13 @@
-"""The policy simulator: booking controls replayed on sampled request streams.
+"""The policy simulator: booking controls replayed against sampled customers.
 
-Every policy is replayed on the same ``(paths, T)`` request streams drawn from the demand model's
-seeded sampler (:meth:`~rmkit.model.demand.DemandModel.sample_streams`), so two policies simulated with
-the same seed see exactly the same requests: their per-path revenue differences are *paired* and
-their variance is smaller than that of two independent estimates (common random numbers).
+Every policy is replayed against the same customers drawn from the demand model's seeded sampler
+(:meth:`~rmkit.model.demand.DemandModel.sample_arrivals`: each period's customer type and the one
+uniform number that decides what she buys from whatever is on offer when she arrives), so two
+policies simulated with the same seed meet exactly the same customers: their per-path revenue
+differences are *paired* and their variance is smaller than that of two independent estimates
+(common random numbers). What is on offer at a state is the control's business
+(:mod:`rmkit.controls`); what the customer then does is the demand kind's
+(:mod:`rmkit.kernels.replay`).
 
 Statistics
 ----------
@@ -30,10 +34,10 @@ depend on how many other paths run beside it: the first k paths of a long run eq
 >>> from rmkit import DemandModel, Network
 >>> net = Network.build(legs=[("L", 1)], products=[("P", 10.0, ["L"])])
 >>> demand = DemandModel(np.array([[0.5], [0.5]]))
->>> demand.sample_streams(4, seed=0).tolist()  # requested product per period, -1 = none
+>>> demand.sample_arrivals(4, seed=0).customer.tolist()  # product asked for, -1 = nobody
 [[-1, 0], [0, 0], [-1, -1], [-1, -1]]
 >>> ds = simulate(net, demand, "fcfs", paths=4, seed=0)
->>> ds.revenue.values.tolist(), ds.rejected.values.ravel().tolist()  # one seat: path 1 refuses one
+>>> ds.revenue.values.tolist(), ds.no_purchase.values.ravel().tolist()  # path 1 refuses one
 ([10.0, 10.0, 0.0, 0.0], [0, 1, 0, 0])
 """
 
@@ -51,16 +55,9 @@ import numpy as np
 
 from rmkit._version import __version__
 from rmkit.errors import InputError, ProblemTooLargeError
-from rmkit.model.demand import DemandModel, check_compatible
+from rmkit.model.demand import Arrivals, DemandModel, check_compatible
 from rmkit.model.network import Network
-from rmkit.workflows.policies import (
-    ADAPTIVE_CONTROLS,
-    SALE_SENSITIVE_CONTROLS,
-    FixedPolicy,
-    PolicySource,
-    control_arrays,
-    make_policy,
-)
+from rmkit.workflows.policies import PolicySource, make_policy
 
 CONFIDENCE = 0.95
 #: Refuse runs whose per-path arrays would need more memory than this (bytes).
@@ -105,7 +102,7 @@ class Outcome:
     parameters: dict[str, Any]
     revenue: np.ndarray
     accepted: np.ndarray
-    rejected: np.ndarray
+    no_purchase: np.ndarray
     seats_left: np.ndarray
     solves: int = 0
     solve_seconds: float = 0.0
@@ -113,45 +110,63 @@ class Outcome:
     every_sale: bool = False
     resolve_periods: list[int] = field(default_factory=list)
     statuses: dict[str, int] = field(default_factory=dict)
+    trace: np.ndarray | None = None
 
 
 @dataclass
 class _Book:
-    """Mutable per-path state the kernels update in place."""
+    """Mutable per-path state the kernel updates in place."""
 
     seats: np.ndarray
     revenue: np.ndarray
     accepted: np.ndarray
-    rejected: np.ndarray
-    sold: np.ndarray
+    lost: np.ndarray
+    memo: np.ndarray
     next_period: np.ndarray
 
     @classmethod
-    def start(cls, network: Network, n_paths: int) -> _Book:
+    def start(cls, network: Network, n_paths: int, n_types: int) -> _Book:
         m, n = network.n_legs, network.n_products
         return cls(
             seats=np.tile(np.asarray(network.capacities, dtype=np.int64), (n_paths, 1)),
             revenue=np.zeros(n_paths),
             accepted=np.zeros((n_paths, n), dtype=np.int64),
-            rejected=np.zeros((n_paths, n), dtype=np.int64),
-            sold=np.zeros((n_paths, m, 0), dtype=np.int64),
+            lost=np.zeros((n_paths, n_types), dtype=np.int64),
+            memo=np.zeros((n_paths, m, 0), dtype=np.int64),
             next_period=np.zeros(n_paths, dtype=np.int64),
         )
 
-    def room_for_buckets(self, n_buckets: int) -> None:
-        if self.sold.shape[2] < n_buckets:
-            grown = np.zeros(self.sold.shape[:2] + (n_buckets,), dtype=np.int64)
-            grown[:, :, : self.sold.shape[2]] = self.sold
-            self.sold = grown
+    def room_for_memory(self, width: int) -> None:
+        if self.memo.shape[2] < width:
+            grown = np.zeros(self.memo.shape[:2] + (width,), dtype=np.int64)
+            grown[:, :, : self.memo.shape[2]] = self.memo
+            self.memo = grown
+
+    def arrays(self) -> tuple[np.ndarray, ...]:
+        return (self.seats, self.revenue, self.accepted, self.lost, self.memo, self.next_period)
 
 
-def _incidence_lists(network: Network) -> tuple[np.ndarray, np.ndarray]:
+def incidence_lists(network: Network) -> tuple[np.ndarray, np.ndarray]:
     """CSR form of the incidence: product j uses legs ``leg_list[leg_ptr[j]:leg_ptr[j+1]]``."""
     a = np.asarray(network.incidence)
     leg_list = np.ascontiguousarray(np.nonzero(a.T)[1], dtype=np.int64)
     leg_ptr = np.zeros(network.n_products + 1, dtype=np.int64)
     leg_ptr[1:] = np.cumsum(a.sum(axis=0))
     return leg_ptr, leg_list
+
+
+def kernel_network(network: Network) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """``(fares, leg_ptr, leg_list)``, the network as the replay kernel reads it."""
+    return (np.ascontiguousarray(network.fares, dtype=np.float64), *incidence_lists(network))
+
+
+def grid_strides(capacities: np.ndarray) -> np.ndarray:
+    """Row-major strides over ``(c_0+1, ..., c_{m-1}+1)``, last leg stride 1."""
+    sizes = np.asarray(capacities, dtype=np.int64) + 1
+    strides = np.ones(sizes.size, dtype=np.int64)
+    for i in range(sizes.size - 2, -1, -1):
+        strides[i] = strides[i + 1] * sizes[i + 1]
+    return strides
 
 
 def _groups(book: _Book, pending: np.ndarray) -> list[tuple[int, np.ndarray, np.ndarray]]:
@@ -174,30 +189,39 @@ def replay(
     network: Network,
     demand: DemandModel,
     source: PolicySource,
-    streams: np.ndarray,
+    arrivals: Arrivals,
     *,
     seed: int,
     resolve: int = 0,
     resolve_every_sale: bool = False,
+    trace: bool = False,
 ) -> Outcome:
-    """Run one policy over given request streams (the engine behind :func:`simulate`)."""
-    from rmkit.kernels.replay import run_requests
+    """Run one policy over given customers (the engine behind :func:`simulate`).
+
+    With ``trace`` the outcome records the flat grid state (over the network's full capacities)
+    at the start of every period of every path.
+    """
+    from rmkit.kernels.replay import replay_paths
 
     started = time.perf_counter()
-    n_paths, n_periods = streams.shape
-    fares = np.ascontiguousarray(network.fares, dtype=np.float64)
-    leg_ptr, leg_list = _incidence_lists(network)
-    wants_resolves = (resolve > 1 and source.control in ADAPTIVE_CONTROLS) or (
-        resolve_every_sale and source.control in SALE_SENSITIVE_CONTROLS)
-    if isinstance(source, FixedPolicy) and wants_resolves:
+    n_paths, n_periods = arrivals.customer.shape
+    control = source.control
+    net = kernel_network(network)
+    dem = demand.kernel_data()
+    wants_resolves = (resolve > 1 and control.adaptive) or (
+        resolve_every_sale and control.sale_sensitive)
+    if not source.resolvable and control.needs_result and wants_resolves:
         raise InputError(
             f"resolve: policy {source.label!r} is a fixed result and cannot be re-solved; pass "
             "the method (its name or a Solver) to re-solve it, or drop the re-solves"
         )
-    points = resolve_periods(n_periods, resolve) if source.adaptive else np.zeros(1, np.int64)
-    every_sale = (bool(resolve_every_sale) and source.adaptive
-                  and source.control in SALE_SENSITIVE_CONTROLS)
-    book = _Book.start(network, n_paths)
+    resolving = source.resolvable and control.adaptive
+    points = resolve_periods(n_periods, resolve) if resolving else np.zeros(1, np.int64)
+    every_sale = bool(resolve_every_sale) and resolving and control.sale_sensitive
+    book = _Book.start(network, n_paths, demand.n_customer_types)
+    strides = grid_strides(network.capacities)
+    states = (np.zeros((n_paths, n_periods), dtype=np.int64) if trace
+              else np.zeros((0, 0), dtype=np.int64))
     solves, solve_seconds = 0, 0.0
     statuses: dict[str, int] = {}
     # control arrays by state; kept across rounds only with every-sale re-solves, where paths
@@ -211,30 +235,28 @@ def replay(
                 t_solve = time.perf_counter()
                 result = source.control_at(network, demand, period, seats,
                                            solve_seed(seed, period, seats))
-                solved[key] = control_arrays(source.control, result, network, seats)
+                solved[key] = control.arrays(result, network, seats)
                 solve_seconds += time.perf_counter() - t_solve
                 if result is not None:
                     solves += 1
                     statuses[result.status] = statuses.get(result.status, 0) + 1
             arrays = solved[key] if every_sale else solved.pop(key)
-            if arrays.n_buckets:
-                book.room_for_buckets(arrays.n_buckets)
-                book.sold[idx] = 0  # limits count the sales made since they were set
+            if control.memory:
+                book.room_for_memory(control.memory_width(arrays))
+                book.memo[idx] = 0  # the control's memory restarts with each new control
             nxt = np.searchsorted(points, period, side="right")
             stop = int(points[nxt]) if nxt < points.size else n_periods
-            run_requests(streams, idx, stop, every_sale, arrays.code, fares, leg_ptr, leg_list,
-                         arrays.t0, arrays.bid, arrays.table, arrays.limit, arrays.bucket,
-                         arrays.bits, arrays.strides, book.seats, book.revenue, book.accepted,
-                         book.rejected, book.sold, book.next_period)
+            replay_paths(arrays, dem, arrivals.customer, arrivals.uniform, idx, stop, every_sale,
+                         net, book.arrays(), states, strides)
         pending = np.flatnonzero(book.next_period < n_periods)
     _warn_inexact(source.label, statuses, solves)
     return Outcome(
         label=source.label,
-        control=source.control,
+        control=control.name,
         parameters=dict(source.parameters),
         revenue=book.revenue,
         accepted=book.accepted,
-        rejected=book.rejected,
+        no_purchase=book.lost,
         seats_left=book.seats,
         solves=solves,
         solve_seconds=solve_seconds,
@@ -242,6 +264,7 @@ def replay(
         every_sale=every_sale,
         resolve_periods=[int(p) for p in points],
         statuses=statuses,
+        trace=states if trace else None,
     )
 
 
@@ -287,7 +310,7 @@ def _check_run(
 
 
 # ---------------------------------------------------------------- datasets
-def _path_dataset(outcome: Outcome, network: Network):
+def _path_dataset(outcome: Outcome, network: Network, demand: DemandModel):
     import xarray as xr
 
     caps = np.asarray(network.capacities, dtype=np.float64)
@@ -298,7 +321,9 @@ def _path_dataset(outcome: Outcome, network: Network):
         {
             "revenue": (("path",), outcome.revenue, {"units": "currency"}),
             "accepted": (("path", "product"), outcome.accepted, {"units": "requests"}),
-            "rejected": (("path", "product"), outcome.rejected, {"units": "requests"}),
+            "no_purchase": (("path", "customer"), outcome.no_purchase,
+                            {"units": "customers", "description": "arrivals who bought nothing "
+                             "(refused requests, for independent demand)"}),
             "seats_left": (("path", "leg"), outcome.seats_left, {"units": "seats"}),
             "load_factor": (("path", "leg"), load, {"units": "1",
                                                     "description": "seats sold / capacity"}),
@@ -313,6 +338,7 @@ def _path_dataset(outcome: Outcome, network: Network):
             "path": np.arange(outcome.revenue.size),
             "product": np.array(network.product_ids, dtype=object),
             "leg": np.array(network.leg_ids, dtype=object),
+            "customer": np.array(demand.customer_type_ids(network), dtype=object),
         },
     )
     return ds
@@ -372,17 +398,18 @@ def simulate(
     Returns
     -------
     xarray.Dataset
-        ``revenue`` (path), ``accepted`` and ``rejected`` (path, product), ``seats_left`` and
+        ``revenue`` (path), ``accepted`` (path, product), ``no_purchase`` (path, customer: customers
+        who bought nothing, by type), ``seats_left`` and
         ``load_factor`` (path, leg), the summary ``revenue_mean``, ``revenue_stderr``,
         ``revenue_ci_low``, ``revenue_ci_high`` and ``load_factor_mean`` (leg); attrs record the
         policy, seed, paths, resolves, number of solves, parameters (JSON) and rmkit version.
     """
     _check_run(network, demand, paths, seed, resolve, max_bytes)
     source = make_policy(policy, dict(params or {}))
-    streams = demand.sample_streams(int(paths), int(seed))
-    outcome = replay(network, demand, source, streams, seed=int(seed), resolve=int(resolve),
+    arrivals = demand.sample_arrivals(int(paths), int(seed))
+    outcome = replay(network, demand, source, arrivals, seed=int(seed), resolve=int(resolve),
                      resolve_every_sale=resolve_every_sale)
-    ds = _path_dataset(outcome, network)
+    ds = _path_dataset(outcome, network, demand)
     ds.attrs.update(_run_attrs(outcome, seed, paths, resolve, network))
     return ds
 
@@ -475,13 +502,13 @@ def compare_policies(
     unknown = sorted(set(params) - set(labels))
     if unknown:
         raise InputError(f"params: no policy labelled {unknown[0]!r}; labels: {', '.join(labels)}")
-    streams = demand.sample_streams(int(paths), int(seed))
+    arrivals = demand.sample_arrivals(int(paths), int(seed))
     outcomes = [
-        replay(network, demand, s, streams, seed=int(seed), resolve=int(resolve),
+        replay(network, demand, s, arrivals, seed=int(seed), resolve=int(resolve),
                resolve_every_sale=resolve_every_sale)
         for s in sources
     ]
-    per_policy = [_path_dataset(o, network) for o in outcomes]
+    per_policy = [_path_dataset(o, network, demand) for o in outcomes]
     ds = xr.concat(per_policy, dim="policy", join="exact")
     ds = ds.assign_coords(policy=np.array(labels, dtype=object))
     ds["control"] = ("policy", np.array([o.control for o in outcomes], dtype=object))

@@ -294,7 +294,9 @@ def scenario_fingerprint(network, demand) -> str:
     """Hash of everything in a scenario that changes a result (ids, capacities, fares, demand)."""
     h = hashlib.sha256()
     h.update(json.dumps([network.leg_ids, network.product_ids]).encode("utf-8"))
-    for a in (network.incidence, network.capacities, network.fares, demand.probabilities):
+    # the demand's own arrays (for independent demand its request table, as before kinds existed,
+    # so stored cell ids stay valid)
+    for a in (network.incidence, network.capacities, network.fares, *demand.content_arrays()):
         h.update(np.ascontiguousarray(a).tobytes())
     return h.hexdigest()[:16]
 

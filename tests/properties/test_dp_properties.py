@@ -69,9 +69,9 @@ def test_value_rises_with_capacity_and_falls_with_time(problem):
 def test_decisions_accept_exactly_when_the_fare_covers_the_opportunity_cost(problem):
     net, dem = problem
     res = get_solver("exact").solve(net, dem)
-    bits = res.payload["decision_bits"]
+    bits = res.policy.bits
     x = net.capacities
-    s = int(x @ res.payload["state_strides"])
+    s = int(x @ res.policy.strides)
     cost = res["opportunity_cost"]
     for j in range(net.n_products):
         accepted = bool(bits[0, s, j // 8] >> (j % 8) & 1)

@@ -8,6 +8,7 @@ from pathlib import Path
 import numpy as np
 from hypothesis import given
 from hypothesis import strategies as st
+from scipy.stats import binom
 
 from rmkit import DemandModel, Network, load_scenario, save_scenario, scenario_from_model
 
@@ -54,11 +55,15 @@ def test_sampled_frequencies_match_probabilities(problem, seed):
     streams = dem.sample_streams(n_paths, seed)
     np.testing.assert_array_equal(streams, dem.sample_streams(n_paths, seed))
     p = dem.probabilities
+    # each count is Binomial(n_paths, p): it must lie within the exact binomial quantiles of
+    # 1e-9 on either side (scipy.stats.binom); a normal 5-sigma band is wrong for tiny p, where
+    # one single hit already lies "5 sigma" out
+    alpha = 1e-9
     for j in range(dem.n_products):
-        freq = (streams == j).mean(axis=0)
-        # binomial standard error per period; 5 sigma keeps the false-alarm rate negligible
-        tol = 5 * np.sqrt(p[:, j] * (1 - p[:, j]) / n_paths) + 1e-12
-        assert np.all(np.abs(freq - p[:, j]) <= tol)
-    none = (streams == -1).mean(axis=0)
+        count = (streams == j).sum(axis=0)
+        assert np.all(count >= binom.ppf(alpha, n_paths, p[:, j]))
+        assert np.all(count <= binom.isf(alpha, n_paths, p[:, j]))
+    none = (streams == -1).sum(axis=0)
     q = np.clip(1 - p.sum(axis=1), 0.0, 1.0)
-    assert np.all(np.abs(none - q) <= 5 * np.sqrt(q * (1 - q) / n_paths) + 1e-9)
+    assert np.all(none >= binom.ppf(alpha, n_paths, q))
+    assert np.all(none <= binom.isf(alpha, n_paths, q))

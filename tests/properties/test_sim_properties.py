@@ -7,7 +7,7 @@ from hypothesis import given
 from hypothesis import strategies as st
 
 from rmkit import SolveResult
-from rmkit.kernels.replay import CONTROL_CODES
+from rmkit.controls import get_control
 from rmkit.workflows.policies import FixedPolicy, make_policy
 from rmkit.workflows.simulate import replay, simulate
 from tests.properties.test_dp_properties import small_networks  # the shared random problems
@@ -24,7 +24,7 @@ def controlled_problems(draw):
     """A problem and a random control of a random type, as a fixed result from period 0."""
     net, dem = draw(small_networks())
     rng = np.random.default_rng(draw(st.integers(0, 2**32 - 1)))
-    control = draw(st.sampled_from(["fcfs", "bid_price", "table", "nested", "exact"]))
+    control = draw(st.sampled_from(["fcfs", "bid_price", "table", "nested", "decisions"]))
     m, n, T = net.n_legs, net.n_products, dem.n_periods
     top = float(net.fares.max())
     if control == "fcfs":
@@ -51,9 +51,9 @@ def controlled_problems(draw):
 def test_bookkeeping_adds_up(case, paths, seed):
     net, dem, policy, _ = case
     ds = simulate(net, dem, policy, paths=paths, seed=seed)
-    streams = dem.sample_streams(paths, seed)
+    streams = dem.sample_arrivals(paths, seed).customer
     requests = np.stack([(streams == j).sum(axis=1) for j in range(net.n_products)], axis=1)
-    np.testing.assert_array_equal(ds.accepted.values + ds.rejected.values, requests)
+    np.testing.assert_array_equal(ds.accepted.values + ds.no_purchase.values, requests)
     sold = ds.accepted.values @ net.incidence.T
     np.testing.assert_array_equal(ds.seats_left.values, net.capacities - sold)
     assert np.all(ds.seats_left.values >= 0)
@@ -65,9 +65,10 @@ def test_bookkeeping_adds_up(case, paths, seed):
 @given(controlled_problems(), st.integers(0, 1000))
 def test_matches_the_plain_replay(case, seed):
     net, dem, policy, control = case
-    streams = dem.sample_streams(15, seed)
+    arrivals = dem.sample_arrivals(15, seed)
+    streams = arrivals.customer
     source = make_policy(policy)
-    out = replay(net, dem, source, streams, seed=seed)
+    out = replay(net, dem, source, arrivals, seed=seed)
     ref = reference_replay(net, streams, control, lambda t, x: source.control_at(net, dem, t, x, 0),
                            {0})
     np.testing.assert_allclose(out.revenue, ref[0], rtol=0, atol=1e-9)
@@ -126,24 +127,23 @@ def test_no_policy_beats_the_optimum(problem, seed):
 def test_kernel_equals_its_interpreted_self(case, seed, stop_after_sale):
     net, dem, policy, control = case
     source = make_policy(policy)
-    from rmkit.workflows.policies import control_arrays
-    from rmkit.workflows.simulate import _incidence_lists
+    from rmkit.workflows.simulate import grid_strides, kernel_network
 
-    arrays = control_arrays(control, source.control_at(net, dem, 0, net.capacities, 0), net,
-                            net.capacities)
-    streams = dem.sample_streams(5, seed)
-    leg_ptr, leg_list = _incidence_lists(net)
-    p = streams.shape[0]
+    kind = get_control(control)
+    arrays = kind.arrays(source.control_at(net, dem, 0, net.capacities, 0), net, net.capacities)
+    arrivals = dem.sample_arrivals(5, seed)
+    p = arrivals.n_paths
+    width = max(kind.memory_width(arrays), 1)
 
     def book():
         return [np.tile(net.capacities, (p, 1)).astype(np.int64), np.zeros(p),
                 np.zeros((p, net.n_products), np.int64), np.zeros((p, net.n_products), np.int64),
-                np.zeros((p, net.n_legs, max(arrays.n_buckets, 1)), np.int64),
-                np.zeros(p, np.int64)]
+                np.zeros((p, net.n_legs, width), np.int64), np.zeros(p, np.int64)]
 
     books = kernel_both_ways(
-        (streams, np.arange(p, dtype=np.int64), dem.n_periods, stop_after_sale,
-         CONTROL_CODES[control], net.fares, leg_ptr, leg_list, arrays.t0, arrays.bid, arrays.table,
-         arrays.limit, arrays.bucket, arrays.bits, arrays.strides), book)
+        (arrays, dem.kernel_data(), arrivals.customer, arrivals.uniform,
+         np.arange(p, dtype=np.int64), dem.n_periods, stop_after_sale, kernel_network(net)),
+        book, lambda: np.zeros((p, dem.n_periods), np.int64),
+        grid_strides(net.capacities))
     for a, b in zip(*books, strict=True):
         np.testing.assert_array_equal(a, b)

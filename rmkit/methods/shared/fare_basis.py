@@ -50,8 +50,6 @@ from rmkit.errors import InputError
 from rmkit.model.network import Network
 
 FARE_BASES = ("full", "prorated", "network")
-#: The leg heuristics themselves: they cannot supply the displacement bid prices they consume.
-LEG_HEURISTICS = ("emsrb-heuristic", "emsrb", "davn")
 
 
 def full_fares(network: Network) -> np.ndarray:
@@ -132,12 +130,12 @@ def displacement_bid_prices(
     from rmkit.methods.base import get_solver
     from rmkit.results import BookingState
 
-    if method in LEG_HEURISTICS:
-        raise InputError(
-            f"displacement_method: {method!r} is a leg heuristic that itself needs displacement "
-            "bid prices; use a network method such as 'dlp'"
-        )
     solver = get_solver(method)
+    if solver.tags.needs_displacement:
+        raise InputError(
+            f"displacement_method: {method!r} itself needs displacement bid prices; use a "
+            "network method such as 'dlp'"
+        )
     if not solver.tags.gives_bid_prices:
         raise InputError(f"displacement_method: {method!r} gives no bid prices; use e.g. 'dlp'")
     state = BookingState(period=int(period), capacity=tuple(int(c) for c in capacity))

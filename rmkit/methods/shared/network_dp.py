@@ -33,18 +33,14 @@ from __future__ import annotations
 import math
 import os
 import sys
-from collections.abc import Mapping, Sequence
+from collections.abc import Sequence
 from dataclasses import dataclass
-from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
 from rmkit.errors import InputError, ProblemTooLargeError
 from rmkit.model.demand import DemandModel, check_compatible
 from rmkit.model.network import Network
-
-if TYPE_CHECKING:  # pragma: no cover
-    import xarray as xr
 
 #: Updates (state x product x period) per second assumed by the run-time estimate: a
 #: conservative figure for this kernel on one core of a current x86 machine.
@@ -403,7 +399,7 @@ def prepare(
 ) -> BackwardPass:
     """Allocate and lay out one backward pass (no size check: callers check first)."""
     lay = _layout(network)
-    prob = np.ascontiguousarray(demand.probabilities[period:])
+    prob = np.ascontiguousarray(demand.sale_probabilities(None, period))
     fare = np.ascontiguousarray(np.broadcast_to(network.fares, prob.shape))
     n_k = prob.shape[0]
     word = _word_dtype(network.n_products)
@@ -482,250 +478,47 @@ def solve_network_dp(
 
 
 # ------------------------------------------------------------------ marginal values
-def _states_array(network: Network, states: Any) -> np.ndarray:
-    x = np.asarray(states)
-    if x.ndim == 1:
-        x = x[None, :]
-    if x.ndim != 2 or x.shape[1] != network.n_legs:
-        raise InputError(
-            f"states: needs one remaining capacity per leg ({network.n_legs}) per state, "
-            f"got shape {np.asarray(states).shape}"
-        )
-    for q, row in enumerate(x):
-        network.check_capacity(row, f"states[{q}]")
-    return x.astype(np.int64)
-
-
-def _moves(network: Network, kind: str) -> tuple[np.ndarray, str, list[str]]:
-    if kind == "leg":
-        return np.eye(network.n_legs, dtype=np.int64), "leg", network.leg_ids
-    return network.incidence.T.astype(np.int64), "product", network.product_ids
-
-
-def _differences_over_time(
+def marginal_values(
     network: Network,
     demand: DemandModel,
-    x: np.ndarray,
-    kind: str,
-    period: int,
-    max_memory_gb: float,
-) -> np.ndarray:
-    """``(T - period, K, moves)``: ``V_{t+1}(x) - V_{t+1}(x - move)`` for every period t."""
-    moves, _, _ = _moves(network, kind)
-    n_k = demand.n_periods - period
-    need = 8 * n_k * x.shape[0] * (2 * moves.shape[0] + 1)  # `there` and the result, `here`
+    periods: np.ndarray,
+    states: np.ndarray,
+    max_memory_gb: float = DEFAULT_MAX_MEMORY_GB,
+) -> tuple[np.ndarray, np.ndarray]:
+    """Exact leg marginal values ``(K, m)`` and product opportunity costs ``(K, n)`` at K pairs.
+
+    Pair q is (period ``t = periods[q]``, seats left ``x = states[q]``): leg i's value
+    ``V_{t+1}(x) - V_{t+1}(x - e_i)`` and product j's ``V_{t+1}(x) - V_{t+1}(x - A_j)``, ``+inf``
+    where the seat (or one of the product's seats) is not there. One backward pass from period 0
+    records ``V_{t+1}`` at the states needed, so asking for many pairs costs one solve.
+    """
+    periods = np.asarray(periods, dtype=np.int64)
+    x = np.asarray(states, dtype=np.int64).reshape(-1, network.n_legs)
+    if periods.shape != (x.shape[0],):
+        raise InputError(f"periods: needs one period per state ({x.shape[0]}), got shape "
+                         f"{periods.shape}")
+    if periods.size and (periods.min() < 0 or periods.max() >= demand.n_periods):
+        raise InputError(f"periods: must be in [0, {demand.n_periods - 1}]")
+    for q in range(x.shape[0]):
+        network.check_capacity(x[q], f"states[{q}]")
+    moves = np.concatenate([np.eye(network.n_legs, dtype=np.int64),
+                            np.asarray(network.incidence, dtype=np.int64).T])  # (m + n, m)
+    need = 8 * x.shape[0] * (2 * moves.shape[0] + 1)
     if need > max_memory_gb * 2**30:
         raise ProblemTooLargeError(
-            f"{n_k} periods x {x.shape[0]:,} states x {moves.shape[0]} {kind}s of marginal values "
-            f"need about {need / 2**30:.3g} GiB, above max_memory_gb={max_memory_gb:g}; ask for "
-            "fewer states or fewer periods (solve from a later period)"
+            f"{x.shape[0]:,} states x {moves.shape[0]} moves of marginal values need about "
+            f"{need / 2**30:.3g} GiB, above max_memory_gb={max_memory_gb:g}; ask for fewer states"
         )
     strides = grid_strides(network.capacities)
-    s = flat_index(x, strides)  # (K,)
-    ok = np.all(x[:, None, :] >= moves[None, :, :], axis=2)  # (K, M)
-    nb = s[:, None] - moves @ strides  # (K, M), meaningful where ok
-    wanted = np.unique(np.concatenate([s, nb[ok]]))
-    dp = solve_network_dp(
-        network, demand, period, keep_decisions=False, probe=wanted, max_memory_gb=max_memory_gb
-    )
-    at = dp.probe_values  # (T', U)
-    here = at[:, np.searchsorted(wanted, s)]  # (T', K)
-    there = at[:, np.searchsorted(wanted, np.where(ok, nb, s[:, None]))]  # (T', K, M)
-    out = here[:, :, None] - there
-    out[:, ~ok] = np.inf
-    return out
-
-
-def _state_coords(network: Network, x: np.ndarray) -> dict[str, Any]:
-    return {f"capacity_{leg}": ("state", x[:, i]) for i, leg in enumerate(network.leg_ids)}
-
-
-def _marginal_at_states(network, demand, states, kind, period, max_memory_gb) -> xr.DataArray:
-    import xarray as xr
-
-    x = _states_array(network, states)
-    diff = _differences_over_time(network, demand, x, kind, period, max_memory_gb)
-    _, dim, labels = _moves(network, kind)
-    coords = {"period": np.arange(period, demand.n_periods), dim: labels}
-    coords.update(_state_coords(network, x))
-    name = "leg_marginal_value" if kind == "leg" else "opportunity_cost"
-    return xr.DataArray(diff, dims=("period", "state", dim), coords=coords, name=name)
-
-
-def leg_marginal_values(
-    network: Network,
-    demand: DemandModel,
-    states: Any,
-    period: int = 0,
-    max_memory_gb: float = DEFAULT_MAX_MEMORY_GB,
-) -> xr.DataArray:
-    """Exact bid prices ``V_{t+1}(x) - V_{t+1}(x - e_i)`` at chosen states for every period.
-
-    One backward pass records the values it needs, so asking for many states costs one solve.
-
-    Parameters
-    ----------
-    states
-        ``(K, m)`` capacity vectors (or one ``(m,)`` vector).
-
-    Returns
-    -------
-    xarray.DataArray
-        dims ``(period, state, leg)``; coords ``period`` (``period .. T-1``), ``leg`` ids and one
-        ``capacity_<leg id>`` coordinate per leg along ``state``. ``+inf`` where ``x_i = 0``.
-    """
-    return _marginal_at_states(network, demand, states, "leg", period, max_memory_gb)
-
-
-def opportunity_costs(
-    network: Network,
-    demand: DemandModel,
-    states: Any,
-    period: int = 0,
-    max_memory_gb: float = DEFAULT_MAX_MEMORY_GB,
-) -> xr.DataArray:
-    """Exact product opportunity costs ``V_{t+1}(x) - V_{t+1}(x - A_j)`` at chosen states.
-
-    Same layout as :func:`leg_marginal_values` with a ``product`` dim instead of ``leg``;
-    ``+inf`` where the product cannot be sold.
-    """
-    return _marginal_at_states(network, demand, states, "product", period, max_memory_gb)
-
-
-def _slice_states(network: Network, capacity: Mapping[str, Any]) -> tuple[np.ndarray, list, dict]:
-    axes: list[np.ndarray] = []
-    free: list[tuple[str, np.ndarray]] = []
-    fixed: dict[str, int] = {}
-    for leg, cap in zip(network.leg_ids, network.capacities, strict=True):
-        given = capacity.get(leg, range(int(cap) + 1))
-        if np.ndim(given) == 0:
-            axes.append(np.array([int(given)]))
-            fixed[f"capacity_{leg}"] = int(given)
-        else:
-            vals = np.asarray(list(given), dtype=np.int64)
-            axes.append(vals)
-            free.append((f"capacity_{leg}", vals))
-    unknown = sorted(set(capacity) - set(network.leg_ids))
-    if unknown:
-        raise InputError(
-            f"capacity: unknown leg id {unknown[0]!r}; known legs: {', '.join(network.leg_ids)}"
-        )
-    mesh = np.meshgrid(*axes, indexing="ij")
-    return np.stack([m.ravel() for m in mesh], axis=1), free, fixed
-
-
-def _marginal_on_slice(network, demand, capacity, kind, period, max_memory_gb) -> xr.DataArray:
-    import xarray as xr
-
-    x, free, fixed = _slice_states(network, capacity or {})
-    for q, row in enumerate(x):
-        network.check_capacity(row, f"capacity (state {q} of the slice)")
-    diff = _differences_over_time(network, demand, x, kind, period, max_memory_gb)
-    _, dim, labels = _moves(network, kind)
-    shape = [diff.shape[0]] + [v.size for _, v in free] + [diff.shape[2]]
-    coords: dict[str, Any] = {"period": np.arange(period, demand.n_periods), dim: labels}
-    coords.update({name: vals for name, vals in free})
-    coords.update(fixed)
-    name = "leg_marginal_value" if kind == "leg" else "opportunity_cost"
-    dims = ("period", *[n for n, _ in free], dim)
-    return xr.DataArray(diff.reshape(shape), dims=dims, coords=coords, name=name)
-
-
-def leg_marginal_values_slice(
-    network: Network,
-    demand: DemandModel,
-    capacity: Mapping[str, Any] | None = None,
-    period: int = 0,
-    max_memory_gb: float = DEFAULT_MAX_MEMORY_GB,
-) -> xr.DataArray:
-    """Exact bid prices along a capacity slice, one ``capacity_<leg id>`` dim per free leg.
-
-    ``capacity`` maps leg ids to a whole number (held fixed: a scalar coordinate) or a sequence
-    of seat counts (a dim); legs not named run over ``0 .. c_i``. Dims
-    ``(period, capacity_<leg>..., leg)``.
-
-    >>> # e.g. leg_marginal_values_slice(net, dem, {"AB": range(0, 11), "BC": 4})
-    """
-    return _marginal_on_slice(network, demand, capacity, "leg", period, max_memory_gb)
-
-
-def opportunity_costs_slice(
-    network: Network,
-    demand: DemandModel,
-    capacity: Mapping[str, Any] | None = None,
-    period: int = 0,
-    max_memory_gb: float = DEFAULT_MAX_MEMORY_GB,
-) -> xr.DataArray:
-    """Product opportunity costs along a capacity slice; see :func:`leg_marginal_values_slice`."""
-    return _marginal_on_slice(network, demand, capacity, "product", period, max_memory_gb)
-
-
-# ------------------------------------------------------------------ state visits
-def visit_distribution(
-    network: Network,
-    demand: DemandModel,
-    decision_bits: np.ndarray,
-    period: int = 0,
-    capacity: Sequence[int] | np.ndarray | None = None,
-    periods: Sequence[int] | None = None,
-    max_memory_gb: float = DEFAULT_MAX_MEMORY_GB,
-) -> np.ndarray:
-    """P(state at the start of period t) under the policy in ``decision_bits``, by forward recursion.
-
-    Parameters
-    ----------
-    decision_bits
-        ``(T - period, S, ceil(n/8))`` from an exact solve from ``period`` (its ``payload``).
-    capacity
-        Seats left at ``period`` (default: full).
-    periods
-        Absolute periods to return, in ``period .. T`` (T = after the last period); default
-        every period ``period .. T-1``.
-
-    Returns
-    -------
-    numpy.ndarray
-        ``(len(periods), S)`` dense probabilities over the flat grid (rows sum to 1 up to
-        rounding); see :func:`grid_states` for the state of each column.
-    """
-    from rmkit.kernels.network_dp import visit_probabilities
-
-    check_compatible(network, demand)
-    period = demand.check_period(period, "period")
-    x0 = network.capacities if capacity is None else network.check_capacity(capacity, "capacity")
-    lay = _layout(network)
-    n_k = demand.n_periods - period
-    n_bytes = (network.n_products + 7) // 8
-    if decision_bits.shape != (n_k, lay.n_states, n_bytes):
-        raise InputError(
-            f"decision_bits: needs shape {(n_k, lay.n_states, n_bytes)} for a solve from period "
-            f"{period}, got {decision_bits.shape}"
-        )
-    want = np.arange(period, demand.n_periods) if periods is None else np.asarray(periods)
-    if want.size and (want.min() < period or want.max() > demand.n_periods):
-        raise InputError(f"periods: must be in [{period}, {demand.n_periods}], got {want.tolist()}")
-    keep = np.unique(want.astype(np.int64)) - period
-    need = 8 * lay.n_states * (keep.size + 2)
-    if need > max_memory_gb * 2**30:
-        raise ProblemTooLargeError(
-            f"visit_distribution: {keep.size} periods x {lay.n_states:,} states needs "
-            f"{need / 2**30:.3g} GiB, above max_memory_gb={max_memory_gb:g}; ask for fewer periods"
-        )
-    out = np.zeros((keep.size, lay.n_states))
-    visit_probabilities(
-        np.ascontiguousarray(demand.probabilities[period:]),
-        lay.offsets,
-        lay.masked,
-        lay.run_start,
-        lay.run_stop,
-        lay.run_ptr,
-        lay.umask,
-        np.ascontiguousarray(decision_bits),
-        int(flat_index(x0, lay.strides)),
-        keep,
-        out,
-        np.zeros(lay.n_states),
-        np.zeros(lay.n_states),
-    )
-    return out[np.searchsorted(keep, np.asarray(want, np.int64) - period)]
-
+    here = flat_index(x, strides)  # (K,)
+    ok = np.all(x[:, None, :] >= moves[None, :, :], axis=2)  # (K, m + n)
+    there = np.where(ok, here[:, None] - moves @ strides, here[:, None])
+    wanted = np.unique(np.concatenate([here, there.ravel()]))
+    dp = solve_network_dp(network, demand, 0, keep_decisions=False, probe=wanted,
+                          max_memory_gb=max_memory_gb)
+    values = dp.probe_values  # (T, U): V_{t+1} at the probed states
+    rows = periods[:, None]
+    diff = values[rows, np.searchsorted(wanted, here)[:, None]] - values[
+        rows, np.searchsorted(wanted, there)]
+    diff[~ok] = np.inf
+    return diff[:, : network.n_legs], diff[:, network.n_legs :]
