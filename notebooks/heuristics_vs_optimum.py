@@ -5,6 +5,8 @@
 #     text_representation:
 #       extension: .py
 #       format_name: percent
+#       format_version: '1.3'
+#       jupytext_version: 1.19.6
 #   kernelspec:
 #     display_name: Python 3
 #     language: python
@@ -35,7 +37,7 @@ import os
 
 from rmkit.cli.demo import example_path
 from rmkit.model.scenario import load_scenario
-from rmkit.workflows.calibrate import calibrate
+from rmkit.workflows.calibrate import calibrate, calibration_report
 from rmkit.workflows.compare import compare, ranked
 from rmkit.workflows.plots import comparison_figure
 
@@ -111,7 +113,7 @@ ds[["difference_mean", "difference_stderr", "revenue_stderr"]].to_dataframe().dr
 tuned = calibrate(net, dem, "emsrb-heuristic",
                   {"multiplier": "0.6:1.4", "fare_basis": "prorated,network"},
                   paths=PATHS // 2, seed=SEED)
-report = tuned.to_dict()
+report = calibration_report(tuned)
 gain = report["improvement_fresh"]
 print("default:", report["default"]["setting"], f"{report['default']['fresh_revenue']:,.1f}")
 print("tuned:  ", report["tuned"]["setting"], f"{report['tuned']['fresh_revenue']:,.1f}")

@@ -1,10 +1,10 @@
-"""The one result type every solver returns, and the schema that labels it.
+"""The one result type every solver returns.
 
-Solvers hand back raw numpy arrays keyed by the variable names of :data:`SCHEMA`; this module is
-the single place that knows each variable's dimensions, units and meaning, and the only place that
-builds an ``xarray.Dataset`` from them. Coordinates carry what is compared (leg and product ids,
-period and capacity indices); attrs carry provenance (method, parameters as JSON, status, seed,
-rmkit version, wall time, the booking state solved from).
+Solvers hand back raw numpy arrays keyed by the variable names of :data:`SCHEMA` (the solver's
+part of the one schema, :mod:`rmkit.schema`, which knows each variable's dimensions, units and
+meaning); :meth:`SolveResult.to_dataset` labels them. Coordinates carry what is compared (leg and
+product ids, period and capacity indices); attrs carry provenance (method, parameters as JSON,
+status, seed, rmkit version, wall time, the booking state solved from).
 
 Conventions
 -----------
@@ -30,49 +30,20 @@ import numpy as np
 from rmkit._version import __version__
 from rmkit.errors import InputError
 from rmkit.model.network import Network
+from rmkit.schema import VARIABLES, VariableSpec
 
 #: Shared status list (every back end's native status maps onto one of these).
 STATUSES = ("optimal", "optimal_inaccurate", "infeasible", "iteration_limit", "error")
 
 
-@dataclass(frozen=True)
-class VariableSpec:
-    dims: tuple[str, ...]
-    units: str
-    description: str
-
-
-CURRENCY = "currency"
-PER_SEAT = "currency per seat"
-
-#: Variable name -> dims, units, meaning. The single source of truth for result labels.
-SCHEMA: dict[str, VariableSpec] = {
-    "value": VariableSpec((), CURRENCY, "objective: optimum, bound or expected revenue to go"),
-    "value_stderr": VariableSpec((), CURRENCY, "standard error of a sampled value"),
-    "bid_price": VariableSpec(("leg",), PER_SEAT, "leg bid prices at the state solved from"),
-    "bid_price_table": VariableSpec(
-        ("period", "capacity", "leg"), PER_SEAT, "bid price by period and seats left"
-    ),
-    "leg_value": VariableSpec(
-        ("period", "capacity", "leg"), CURRENCY, "leg value to go at the start of a period"
-    ),
-    "allocation": VariableSpec(("product",), "seats", "seats allocated to each product"),
-    "net_fare": VariableSpec(("leg", "product"), CURRENCY, "fare a leg counts for a product"),
-    "protection_level": VariableSpec(
-        ("leg", "bucket"), "seats", "seats protected for buckets 0..b (nested, 0 = highest)"
-    ),
-    "booking_limit": VariableSpec(("leg", "bucket"), "seats", "nested booking limit per bucket"),
-    "bucket": VariableSpec(("leg", "product"), "1", "bucket index of a product on a leg, -1 = none"),
-    "bucket_fare": VariableSpec(("leg", "bucket"), CURRENCY, "representative fare of a bucket"),
-    "multiplier": VariableSpec(
-        ("period", "leg", "product"), CURRENCY, "Lagrange multipliers splitting fares over legs"
-    ),
-    "bound_history": VariableSpec(("iteration",), CURRENCY, "bound after each iteration"),
-    "gap_history": VariableSpec(("iteration",), "1", "relative gap after each iteration"),
-    "opportunity_cost": VariableSpec(
-        ("product",), CURRENCY, "displacement cost of selling one unit of a product"
-    ),
-}
+#: The variables a solver may return (dims, units and meaning in :data:`rmkit.schema.VARIABLES`).
+SOLVE_VARIABLES = (
+    "value", "value_stderr", "bid_price", "bid_price_table", "leg_value", "allocation",
+    "net_fare", "protection_level", "booking_limit", "product_bucket", "bucket_fare",
+    "multiplier", "bound_history", "gap_history", "opportunity_cost",
+)
+#: Variable name -> dims, units, meaning, for solver results (a view of the one schema).
+SCHEMA: dict[str, VariableSpec] = {name: VARIABLES[name] for name in SOLVE_VARIABLES}
 
 
 @dataclass(frozen=True)
@@ -253,15 +224,11 @@ class SolveResult:
         """The result as an ``xarray.Dataset`` (dims and units from :data:`SCHEMA`)."""
         import xarray as xr
 
+        from rmkit import schema
+
         coords = self.coords()
-        data_vars = {}
-        used: set[str] = set()
-        for name, arr in self.variables.items():
-            spec = SCHEMA[name]
-            used.update(spec.dims)
-            data_vars[name] = xr.Variable(
-                spec.dims, arr, attrs={"units": spec.units, "description": spec.description}
-            )
+        data_vars = {name: schema.variable(name, arr) for name, arr in self.variables.items()}
+        used = {d for var in data_vars.values() for d in var.dims}
         ds = xr.Dataset(data_vars, coords={k: v for k, v in coords.items() if k in used})
         ds.attrs.update(self.attrs())
         return ds

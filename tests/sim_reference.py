@@ -117,7 +117,7 @@ class LinprogNestedLimits(Solver):
                 bucket[i, j] = b
                 limit[i, b] = problem.capacity[i] - np.floor(protected)
                 protected += y[j]
-        return SolveOutput({"booking_limit": limit, "bucket": bucket})
+        return SolveOutput({"booking_limit": limit, "product_bucket": bucket})
 
 
 class RecordingPolicy(Solver):
@@ -169,7 +169,7 @@ def reference_replay(network, streams, control, control_at, points, every_sale=F
                 rows = res["bid_price_table"][t - res.period]
                 ok = f[j] >= sum(rows[x[i], i] for i in legs) - TOL * f[j]
             elif ok and control == "nested":
-                lim, bkt = res["booking_limit"], res["bucket"]
+                lim, bkt = res["booking_limit"], res["product_bucket"]
                 for i in legs:
                     b = int(bkt[i, j])
                     taken = sum(v for (ii, bb), v in sold.items() if ii == i and bb >= b)
@@ -182,7 +182,7 @@ def reference_replay(network, streams, control, control_at, points, every_sale=F
                 for i in legs:
                     x[i] -= 1
                     if control == "nested":
-                        key = (i, int(res["bucket"][i, j]))
+                        key = (i, int(res["product_bucket"][i, j]))
                         sold[key] = sold.get(key, 0) + 1
                 revenue[k] += f[j]
                 accepted[k, j] += 1

@@ -34,25 +34,38 @@ def tuned():
 def test_tuned_beats_default_on_fresh_paths_within_noise_and_stays_below_the_optimum(tuned):
     net, dem = small_problem()
     optimum = brute_force_values(net, dem)[0][tuple(int(c) for c in net.capacities)]
-    kind, method, value = tuned.reference.kind, tuned.reference.method, tuned.reference.value
+    a = tuned.attrs
+    kind, method, value = a["reference_kind"], a["reference_method"], a["reference_value"]
     assert (kind, method) == ("optimum", "exact") and value == pytest.approx(optimum, rel=1e-9)
-    mean, se, lo, hi = tuned.improvement_fresh()
-    assert tuned.tuned_fresh.mean >= tuned.default_fresh.mean - 3 * se
-    assert tuned.tuned_fresh.mean <= optimum + 3 * tuned.tuned_fresh.stderr
+    se = float(tuned["improvement_stderr"])
+    fresh = tuned["fresh_revenue_mean"].values
+    assert fresh[a["tuned_setting"]] >= fresh[a["default_setting"]] - 3 * se
+    q_tuned, q_default = a["tuned_setting"], a["default_setting"]
+    fresh_se = tuned["fresh_revenue_stderr"].values
+    assert fresh[q_tuned] <= optimum + 3 * fresh_se[q_tuned]
     # the default (multiplier 1, prorated) lies in the ranges, so on the search paths the
-    # winner is at least as good as the default by construction
-    assert tuned.tuned.mean >= tuned.default.mean
-    assert tuned.fresh_seed == 3 and tuned.default.setting["multiplier"] == 1.0
-    assert 0.3 <= tuned.tuned.setting["multiplier"] <= 2.0
-    assert tuned.tuned.setting["fare_basis"] in ("prorated", "network")
+    # winner is the best of every setting tried, the default included, by construction
+    search = tuned["revenue_mean"].values
+    assert search[q_tuned] == search.max() >= search[q_default]
+    assert a["fresh_seed"] == 3 and tuned["multiplier"].values[q_default] == 1.0
+    assert 0.3 <= tuned["multiplier"].values[q_tuned] <= 2.0
+    assert tuned["fare_basis"].values[q_tuned] in ("prorated", "network")
     # the grid, then scipy's refinement inside the best cell
-    assert len(tuned.trail) > 2 * 9
+    assert a["evaluations"] > 2 * 9
+    # only the default and the tuned setting are re-measured on fresh paths
+    assert np.isfinite(fresh).sum() == (1 if q_tuned == q_default else 2)
 
 
-def test_report_dict_is_json(tuned):
-    out = json.loads(json.dumps(tuned.to_dict()))
+def test_report_is_json_and_the_dataset_follows_the_schema(tuned):
+    from rmkit import schema
+    from rmkit.workflows.calibrate import calibration_report
+
+    assert schema.check(tuned) == []
+    out = json.loads(json.dumps(calibration_report(tuned)))
     assert {"heuristic", "default", "tuned", "improvement_fresh", "reference", "trail"} <= set(out)
-    assert out["tuned"]["fresh_revenue"] == pytest.approx(tuned.tuned_fresh.mean)
+    q = tuned.attrs["tuned_setting"]
+    assert out["tuned"]["fresh_revenue"] == pytest.approx(float(tuned["fresh_revenue_mean"][q]))
+    assert len(out["trail"]) == tuned.attrs["evaluations"]
 
 
 def test_scaled_policy_limits():

@@ -59,7 +59,7 @@ def test_davn_net_fares_subtract_the_other_legs_dlp_duals():
     np.testing.assert_allclose(res["net_fare"], expected, atol=1e-9)
     np.testing.assert_allclose(res.payload["displacement_bid_price"], [100.0, 60.0], atol=1e-9)
     # the connection is the top bucket on both legs; each local is below it
-    np.testing.assert_array_equal(res["bucket"], [[1, -1, 0], [-1, 1, 0]])
+    np.testing.assert_array_equal(res["product_bucket"], [[1, -1, 0], [-1, 1, 0]])
     np.testing.assert_allclose(res["bucket_fare"][:, :2], [[140.0, 100.0], [100.0, 60.0]])
 
 
@@ -70,11 +70,11 @@ def test_products_with_no_net_contribution_are_closed():
     np.testing.assert_allclose(linprog_duals(net, dem), [100.0, 60.0], atol=1e-9)
     res = get_solver("davn").solve(net, dem)
     np.testing.assert_allclose(res["net_fare"][:, 2], [50.0 - 60.0, 50.0 - 100.0], atol=1e-9)
-    np.testing.assert_array_equal(res["bucket"][:, 2], [-1, -1])
+    np.testing.assert_array_equal(res["product_bucket"][:, 2], [-1, -1])
     for method in ("emsrb", "emsrb-heuristic"):
         other = get_solver(method, fare_basis="network").solve(net, dem)
         np.testing.assert_allclose(other["net_fare"], res["net_fare"])
-    assert get_solver("emsrb", fare_basis="network").solve(net, dem)["bucket"][0, 2] == -1
+    assert get_solver("emsrb", fare_basis="network").solve(net, dem)["product_bucket"][0, 2] == -1
 
 
 def test_network_fares_take_any_bid_price_vector():
@@ -169,7 +169,7 @@ def test_one_leg_davn_is_emsr_b(law):
     np.testing.assert_array_equal(res["protection_level"][0], [*np.minimum(y, 40), 40])
     same = get_solver("emsrb", law=law).solve(net, dem)
     np.testing.assert_array_equal(same["protection_level"][0, :4], res["protection_level"][0])
-    np.testing.assert_array_equal(same["bucket"], res["bucket"])
+    np.testing.assert_array_equal(same["product_bucket"], res["product_bucket"])
 
 
 @needs_dlp
@@ -179,7 +179,7 @@ def test_davn_buckets_merge_fares_and_their_demand():
     res = get_solver("davn", buckets=2).solve(net, dem)
     mean = dem.demand_to_come(0)
     labels = group_fares(net.fares, mean, 2)
-    np.testing.assert_array_equal(res["bucket"][0], labels)
+    np.testing.assert_array_equal(res["product_bucket"][0], labels)
     fares = [np.average(net.fares[labels == b], weights=mean[labels == b]) for b in (0, 1)]
     np.testing.assert_allclose(res["bucket_fare"][0], fares)
     merged = [mean[labels == b].sum() for b in (0, 1)]
@@ -203,12 +203,12 @@ def test_booking_limits_follow_the_convention_at_the_solve_state(method):
     assert np.all(limit >= 0) and np.all(limit <= x[:, None])
     assert np.all(np.diff(limit, axis=1) <= 0) and np.all(np.diff(prot, axis=1) >= 0)
     used = net.incidence.astype(bool)
-    assert np.all(res["bucket"][~used] == -1)
+    assert np.all(res["product_bucket"][~used] == -1)
     fares = res["bucket_fare"]
     for i in range(net.n_legs):
         k = int(np.isfinite(fares[i]).sum())
         assert np.all(np.diff(fares[i, :k]) < 0) and np.all(prot[i, max(k - 1, 0) :] == x[i])
-        assert res["bucket"][i].max() == k - 1
+        assert res["product_bucket"][i].max() == k - 1
 
 
 @needs_dlp

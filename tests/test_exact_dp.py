@@ -11,6 +11,7 @@ import scipy.sparse as sp
 
 from rmkit import BookingState, DemandModel, InputError, Network, ProblemTooLargeError, get_solver
 from rmkit.kernels import network_dp as kern
+from rmkit.methods.shared.leg_dp import single_leg_dp
 from rmkit.methods.shared.network_dp import (
     _layout,
     estimate,
@@ -19,7 +20,6 @@ from rmkit.methods.shared.network_dp import (
     marginal_values,
     solve_network_dp,
 )
-from rmkit.methods.shared.single_leg import single_leg_dp
 from tests.conftest import EXAMPLE
 from tests.instances import brute_force_values, random_problem, small_problem
 

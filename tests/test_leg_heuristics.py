@@ -13,6 +13,7 @@ import pytest
 from scipy.stats import binom, norm, poisson
 
 from rmkit import InputError
+from rmkit.methods.shared.leg_dp import single_leg_dp
 from rmkit.methods.shared.leg_heuristics import (
     booking_limits,
     demand_pmf,
@@ -28,7 +29,6 @@ from rmkit.methods.shared.leg_heuristics import (
     nested_sales,
     optimal_protection_levels,
 )
-from rmkit.methods.shared.single_leg import single_leg_dp
 
 # Talluri & van Ryzin (2004), The Theory and Practice of Revenue Management, ch. 2, EMSR example.
 TVR_FARES = [1050.0, 567.0, 534.0, 520.0]

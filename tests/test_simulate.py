@@ -111,7 +111,7 @@ def test_nested_limits_by_hand():
     net = _two_leg_network()
     limit = np.array([[2.0, 1.0], [1.0, 0.0]])
     bucket = np.array([[1, -1, 0], [-1, -1, 0]])
-    out = _replay_streams(net, HAND_STREAMS, _fixed(net, 6, booking_limit=limit, bucket=bucket))
+    out = _replay_streams(net, HAND_STREAMS, _fixed(net, 6, booking_limit=limit, product_bucket=bucket))
     # path 0: AC yes (AB bucket 0 count 1 <= 2, BC 1 <= 1); AB: sold into bucket 1.. = 0 + 1 <= 1
     #         yes; BC closed; AB: 1 + 1 > 1 no; AC: BC full -> 250
     # path 1: AB yes; AB no; AB no; BC closed x2; AC: AB bucket 0.. = 1 + 1 <= 2 and BC -> 250

@@ -8,7 +8,7 @@ from scipy.stats import binom
 
 from rmkit import InputError
 from rmkit.kernels.single_leg import leg_values_batch, single_leg_values
-from rmkit.methods.shared.single_leg import leg_values, single_leg_dp
+from rmkit.methods.shared.leg_dp import leg_values, single_leg_dp
 
 
 def plain_recursion(prob, fare, capacity):

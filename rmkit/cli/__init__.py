@@ -31,8 +31,18 @@ def build_parser() -> argparse.ArgumentParser:
         module = importlib.import_module(f"rmkit.cli.{name}")
         p = sub.add_parser(name, help=module.HELP, description=module.HELP)
         module.add_arguments(p)
-        p.set_defaults(_run=module.run)
+        p.set_defaults(_run=module.run, _options=getattr(module, "OPTIONS", {}))
     return parser
+
+
+def option_message(message: str, options: dict[str, str]) -> str:
+    """A library message names its own field (``store: ...``, ``ranges['x']: ...``); on the
+    command line the same thing is an option, so name the option the user typed instead."""
+    for field, option in options.items():
+        for sep in (":", "["):
+            if message.startswith(field + sep):
+                return option + message[len(field):]
+    return message
 
 
 
@@ -46,7 +56,7 @@ def main(argv: list[str] | None = None) -> int:
     try:
         return int(args._run(args) or 0)
     except InputError as err:
-        print(f"rmkit: error: {err}", file=sys.stderr)
+        print(f"rmkit: error: {option_message(str(err), args._options)}", file=sys.stderr)
         return 2
     except SolverError as err:
         print(f"rmkit: solver failed: {err}", file=sys.stderr)

@@ -5,9 +5,7 @@ from __future__ import annotations
 import argparse
 import json
 import math
-import os
-import tempfile
-from collections.abc import Callable, Mapping
+from collections.abc import Mapping
 from pathlib import Path
 from typing import Any
 
@@ -136,29 +134,8 @@ def fmt(v: Any) -> str:
     return str(v)
 
 
-def write_atomically(path: str | Path, writer: Callable[[str], None]) -> Path:
-    """Write through a temporary file in the target folder, then rename: never half a file."""
-    target = Path(path)
-    folder = target.parent if str(target.parent) else Path(".")
-    if not folder.is_dir():
-        raise InputError(f"{target}: folder {folder} does not exist; create it or pick another path")
-    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", dir=folder)
-    os.close(fd)
-    try:
-        writer(tmp)
-        umask = os.umask(0)
-        os.umask(umask)
-        os.chmod(tmp, 0o666 & ~umask)  # mkstemp makes files owner-only; give the usual mode
-        os.replace(tmp, target)
-    finally:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-    return target
+def write_netcdf(ds, path: str | Path, field: str = "--out") -> Path:
+    """Save a Dataset to NetCDF atomically (see :mod:`rmkit.files`), naming the option."""
+    from rmkit.files import write_netcdf as write
 
-
-def write_netcdf(ds, path: str | Path) -> Path:
-    """Save a Dataset to NetCDF (h5netcdf engine) atomically."""
-    suffix = Path(path).suffix.lower()
-    if suffix not in (".nc", ".nc4", ".netcdf"):
-        raise InputError(f"--out: {path!r} should end in .nc")
-    return write_atomically(path, lambda tmp: ds.to_netcdf(tmp, engine="h5netcdf"))
+    return write(ds, path, field)

@@ -7,6 +7,8 @@ from typing import Any
 
 from rmkit.cli._common import CAUTION, add_json, add_scenario, emit_json, load
 
+#: Library fields this command fills from options (see rmkit.cli.option_message).
+OPTIONS = {"ranges": "--param", "heuristic": "--heuristic", "paths": "--paths"}
 HELP = "tune a heuristic's settings (multiplier, fare basis, buckets, re-solves) for revenue"
 
 
@@ -50,7 +52,7 @@ def _fmt_setting(setting: dict[str, Any], searched: dict[str, Any]) -> str:
 
 
 def run(args: argparse.Namespace) -> int:
-    from rmkit.workflows.calibrate import calibrate
+    from rmkit.workflows.calibrate import calibrate, calibration_report
 
     scenario = load(args.scenario)
     defaults = scenario.spec.defaults
@@ -60,7 +62,7 @@ def run(args: argparse.Namespace) -> int:
     result = calibrate(scenario.network, scenario.demand, args.heuristic,
                        parse_ranges(args.param), paths=paths, seed=seed,
                        fresh_seed=args.fresh_seed, resolve=resolve)
-    out = {"scenario": scenario.name, **result.to_dict()}
+    out = {"scenario": scenario.name, **calibration_report(result)}
     if args.json:
         emit_json(out)
         return 0

@@ -87,14 +87,15 @@ def check_outputs(out: str | None, plot: str | None) -> None:
 
 
 def write_outputs(ds, out: str | None, plot: str | None) -> None:
-    from rmkit.cli._common import write_atomically, write_netcdf
+    from rmkit.cli._common import write_netcdf
+    from rmkit.files import write_atomically
 
     if out:
         write_netcdf(ds, out)
     if plot:
         from rmkit.workflows.plots import comparison_figure
 
-        write_atomically(plot, lambda tmp: comparison_figure(ds, tmp))
+        write_atomically(plot, lambda tmp: comparison_figure(ds, tmp), "--plot")
 
 
 def report(ds, out: str | None, plot: str | None) -> dict[str, Any]:

@@ -36,8 +36,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    from rmkit.cli._common import write_atomically, write_netcdf
+    from rmkit.cli._common import write_netcdf
     from rmkit.errors import InputError
+    from rmkit.files import write_atomically
     from rmkit.model.scenario import load_scenario
     from rmkit.workflows.plots import comparison_figure
 

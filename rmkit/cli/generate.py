@@ -61,9 +61,9 @@ def run(args: argparse.Namespace) -> int:
     else:
         scenario = generate("line", legs=args.legs, classes=args.classes, ratio=args.ratio,
                             taper=args.taper, **common)
-    from rmkit.cli._common import write_atomically
+    from rmkit.files import write_atomically
 
-    write_atomically(args.out, lambda tmp: save_scenario(scenario, tmp))
+    write_atomically(args.out, lambda tmp: save_scenario(scenario, tmp), "--out")
     info = summary(scenario)
     if args.json:
         emit_json({**info, "out": args.out})

@@ -8,6 +8,8 @@ from pathlib import Path
 
 from rmkit.cli._common import add_json, emit_json, fmt
 
+#: Library fields this command fills from options (see rmkit.cli.option_message).
+OPTIONS = {"store": "--out", "scheduler": "--scheduler", "workers": "--workers"}
 HELP = "run a grid of scenarios x methods x seeds on a local or remote dask cluster (resumable)"
 
 EPILOG = """\
@@ -104,12 +106,14 @@ def run(args: argparse.Namespace) -> int:
     print_wide_table(
         f"{grid.name}: {report.total} cells ({report.resumed} already stored, "
         f"{report.computed} computed now) in {report.seconds:.1f} s",
-        ["method", "kind", "done", "failed", "mean value", "mean std. error", "mean seconds"],
-        [[str(m), str(summary.kind.values[i]), int(summary["done"].values[i]),
+        ["method", "measure", "kind", "done", "failed", "mean value", "mean std. error",
+         "mean seconds"],
+        [[str(m), str(summary.measure.values[i]), str(summary.kind.values[i]),
+          int(summary["done"].values[i]),
           int(summary["failed"].values[i]), float(summary["mean_value"].values[i]),
           float(summary["mean_stderr"].values[i]), float(summary["mean_seconds"].values[i])]
          for i, m in enumerate(summary.method.values)],
-        note=f"store: {store}  (open with rmkit.workflows.sweep.open_sweep; combined file sweep.nc)",
+        note=f"store: {store}  (open with rmkit.open_sweep; combined file sweep.nc)",
     )
     values = value_table(ds)
     if values.sizes["scenario"] <= 60:

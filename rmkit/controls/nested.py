@@ -57,13 +57,13 @@ class NestedLimitControl(Control):
 
     @classmethod
     def drives(cls, result) -> bool:
-        return "booking_limit" in result and "bucket" in result
+        return "booking_limit" in result and "product_bucket" in result
 
     @classmethod
     def arrays(cls, result, network, capacity) -> NestedArrays:
         cls.check_status(result)
         limit = owned(result["booking_limit"], np.float64)
-        bucket = owned(result["bucket"], np.int64)
+        bucket = owned(result["product_bucket"], np.int64)
         m, n = network.n_legs, network.n_products
         n_buckets = limit.shape[1]
         if bucket.shape != (m, n) or bucket.min() < -1 or bucket.max() >= n_buckets:
@@ -95,4 +95,4 @@ class NestedLimitControl(Control):
         limit = np.floor(caps[:, None] * share)
         limit[:, 0] = caps
         return SolveResult("example-nested", network, demand.n_periods,
-                           {"booking_limit": limit, "bucket": bucket})
+                           {"booking_limit": limit, "product_bucket": bucket})

@@ -219,6 +219,12 @@ class Solver:
         raise NotImplementedError
 
 
+def kind_of(solver: Solver | type[Solver]) -> str:
+    """What a method's value is: ``optimum``, ``upper bound`` or ``heuristic``."""
+    tags = solver.tags
+    return "optimum" if tags.exact else "upper bound" if tags.upper_bound else "heuristic"
+
+
 REGISTRY: dict[str, type[Solver]] = {}
 _loaded = False
 

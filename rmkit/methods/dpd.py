@@ -37,7 +37,7 @@ import numpy as np
 
 from rmkit.methods.base import Param, Problem, SolveOutput, Solver, Tags, one_of, positive_int, register
 from rmkit.methods.dlp import leg_duals
-from rmkit.methods.shared.leg_dp import bid_prices_at, leg_tables, leg_values, value_at
+from rmkit.methods.shared.leg_dp import bid_prices_at, leg_tables, network_leg_values, value_at
 from rmkit.methods.shared.network_lp import DUAL_CHOICES
 from rmkit.model.network import Network
 
@@ -88,7 +88,7 @@ class DPDecomposition(Solver):
         duals = leg_duals(problem, params["dual"])
         for _ in range(params["iterations"]):
             fares = displaced_fares(network, duals)
-            values = leg_values(prob, np.broadcast_to(fares[:, None, :], (network.n_legs,
+            values = network_leg_values(prob, np.broadcast_to(fares[:, None, :], (network.n_legs,
                                                                           prob.shape[0],
                                                                           network.n_products)),
                                 network)

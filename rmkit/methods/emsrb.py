@@ -185,7 +185,7 @@ def nested_variables(
         "bid_price": values[np.arange(n_legs), x],
         "protection_level": protection,
         "booking_limit": limit,
-        "bucket": np.array([c.bucket for c in batch.classes], dtype=np.int64),
+        "product_bucket": np.array([c.bucket for c in batch.classes], dtype=np.int64),
         "bucket_fare": bucket_fare,
     }
 

@@ -79,7 +79,7 @@ from rmkit.methods.base import (
     positive_int,
     register,
 )
-from rmkit.methods.shared.leg_dp import bid_prices_at, leg_tables, leg_values, product_legs, value_at
+from rmkit.methods.shared.leg_dp import bid_prices_at, leg_tables, network_leg_values, product_legs, value_at
 from rmkit.model.network import Network
 
 #: Initial level gap ``delta``: this fraction of the certified gap (cold start), or WARM_LEVEL
@@ -270,7 +270,7 @@ def _minimise(
 
 def _bound_at(network: Network, problem: Problem, lam: np.ndarray) -> float:
     """The Lagrangian bound at the state for the split ``lam`` (one pass of the leg DPs)."""
-    values = leg_values(problem.probabilities, lam, network)
+    values = network_leg_values(problem.probabilities, lam, network)
     return float(value_at(values, problem.capacity).sum())
 
 

@@ -28,6 +28,7 @@ of at most :data:`MAX_GRID` points; choices are given as ``a,b``.
 from __future__ import annotations
 
 import itertools
+import json
 import math
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
@@ -76,7 +77,7 @@ def parse_range(name: str, text: str, tunable: Search) -> tuple[str, Any]:
         bad = [c for c in picks if c not in tunable.choices]
         if not picks or bad:
             raise InputError(
-                f"--param {name}: choices must be among {', '.join(tunable.choices)} (comma "
+                f"ranges: {name}: choices must be among {', '.join(tunable.choices)} (comma "
                 f"separated), got {text!r}"
             )
         return "choice", tuple(picks)
@@ -85,12 +86,12 @@ def parse_range(name: str, text: str, tunable: Search) -> tuple[str, Any]:
         lo = float(lo_text)
         hi = float(hi_text) if sep else lo
     except ValueError:
-        raise InputError(f"--param {name}: expected LO:HI numbers, got {text!r}") from None
+        raise InputError(f"ranges: {name}: expected LO:HI numbers, got {text!r}") from None
     if not (math.isfinite(lo) and math.isfinite(hi)) or lo > hi or lo < 0:
-        raise InputError(f"--param {name}: needs 0 <= LO <= HI, got {text!r}")
+        raise InputError(f"ranges: {name}: needs 0 <= LO <= HI, got {text!r}")
     if tunable.kind == "integer":
         if lo != round(lo) or hi != round(hi):
-            raise InputError(f"--param {name}: needs whole numbers LO:HI, got {text!r}")
+            raise InputError(f"ranges: {name}: needs whole numbers LO:HI, got {text!r}")
         n = int(hi) - int(lo) + 1
         grid = np.unique(np.round(np.linspace(lo, hi, min(n, MAX_GRID))).astype(int))
         return "choice", tuple(int(v) for v in grid)
@@ -99,7 +100,7 @@ def parse_range(name: str, text: str, tunable: Search) -> tuple[str, Any]:
     return "continuous", (lo, hi)
 
 
-@dataclass
+@dataclass(eq=False)
 class Evaluation:
     setting: dict[str, Any]
     mean: float
@@ -109,7 +110,7 @@ class Evaluation:
 
 @dataclass
 class Calibration:
-    """What :func:`calibrate` found; :meth:`to_dict` is the JSON the command prints."""
+    """What the search found; :meth:`to_dataset` is what :func:`calibrate` returns."""
 
     heuristic: str
     paths: int
@@ -123,37 +124,105 @@ class Calibration:
     reference: Reference
     trail: list[Evaluation]
 
-    def improvement_fresh(self) -> tuple[float, float, float, float]:
-        """Paired tuned - default revenue on the fresh streams: mean, stderr, 95% interval."""
-        from rmkit.workflows.simulate import summarize
+    def to_dataset(self):
+        """The search as a Dataset along ``setting`` (every setting tried, in order).
 
-        return summarize(self.tuned_fresh.revenue - self.default_fresh.revenue)
+        Variables: ``revenue_mean`` and ``revenue_stderr`` on the search paths; for the default
+        and the tuned setting ``fresh_revenue_mean``, ``fresh_revenue_stderr`` and
+        ``fresh_gap_percent`` on fresh paths (NaN for the others); the paired fresh-path
+        ``improvement_*`` of tuned over default. Coordinates: one per setting name (its value
+        in each setting tried) and ``label``. Attrs: ``default_setting`` and ``tuned_setting``
+        (indices along ``setting``), the heuristic, paths, seeds, the searched ranges (JSON) and
+        the reference the gaps are measured against.
+        """
+        from rmkit import schema
+        from rmkit._version import __version__
+        from rmkit.workflows.stats import summarize
 
-    def to_dict(self) -> dict[str, Any]:
-        mean, se, lo, hi = self.improvement_fresh()
-        kind, method, value = self.reference.kind, self.reference.method, self.reference.value
+        trail = list(self.trail)
+        for ev in (self.default, self.tuned):
+            if not any(ev is x for x in trail):
+                trail.append(ev)
 
-        def row(tuning: Evaluation, fresh: Evaluation) -> dict[str, Any]:
-            return {"setting": tuning.setting, "revenue": tuning.mean, "stderr": tuning.stderr,
-                    "fresh_revenue": fresh.mean, "fresh_stderr": fresh.stderr,
-                    "fresh_gap_percent": 100.0 * (value - fresh.mean) / value
-                    if math.isfinite(value) and value else None}
+        def index(ev: Evaluation) -> int:
+            return next(q for q, x in enumerate(trail) if x is ev)
 
-        return {
-            "heuristic": self.heuristic,
-            "paths": self.paths,
-            "seed": self.seed,
-            "fresh_seed": self.fresh_seed,
-            "searched": {k: list(v) if isinstance(v, tuple) else v
-                         for k, v in self.searched.items()},
-            "default": row(self.default, self.default_fresh),
-            "tuned": row(self.tuned, self.tuned_fresh),
-            "improvement_fresh": {"mean": mean, "stderr": se, "ci_low": lo, "ci_high": hi},
-            "reference": {"kind": kind, "method": method, "value": value},
+        k = len(trail)
+        fresh_mean, fresh_se, fresh_gap = np.full(k, np.nan), np.full(k, np.nan), np.full(k, np.nan)
+        value = self.reference.value
+        for ev, fresh in ((self.default, self.default_fresh), (self.tuned, self.tuned_fresh)):
+            q = index(ev)
+            fresh_mean[q], fresh_se[q] = fresh.mean, fresh.stderr
+            if math.isfinite(value) and value:
+                fresh_gap[q] = 100.0 * (value - fresh.mean) / value
+        imp = summarize(self.tuned_fresh.revenue - self.default_fresh.revenue)
+        names = sorted({name for ev in trail for name in ev.setting})
+        coords: dict[str, Any] = {"setting": np.arange(k), "label": ("setting", np.array(
+            [_label(ev.setting, self.searched) for ev in trail], dtype=object))}
+        for name in names:
+            coords[name] = ("setting", np.array([ev.setting.get(name) for ev in trail],
+                                                dtype=object))
+        ds = schema.dataset({"revenue_mean": [ev.mean for ev in trail],
+                             "revenue_stderr": [ev.stderr for ev in trail],
+                             "fresh_revenue_mean": fresh_mean,
+                             "fresh_revenue_stderr": fresh_se,
+                             "fresh_gap_percent": fresh_gap}, lead=("setting",), coords=coords)
+        for name, v in (("improvement_mean", imp.mean), ("improvement_stderr", imp.stderr),
+                        ("improvement_ci_low", imp.ci_low), ("improvement_ci_high", imp.ci_high)):
+            ds[name] = schema.variable(name, v)
+        ds.attrs.update({
+            "heuristic": self.heuristic, "paths": int(self.paths), "seed": int(self.seed),
+            "fresh_seed": int(self.fresh_seed),
+            "searched": json.dumps({n: list(v) if isinstance(v, tuple) else v
+                                    for n, v in self.searched.items()}, default=str),
+            "default_setting": index(self.default), "tuned_setting": index(self.tuned),
             "evaluations": len(self.trail),
-            "trail": [{"setting": e.setting, "revenue": e.mean, "stderr": e.stderr}
-                      for e in self.trail],
-        }
+            "reference_kind": self.reference.kind, "reference_method": self.reference.method,
+            "reference_value": float(self.reference.value), "rmkit_version": __version__,
+        })
+        return ds
+
+
+def _label(setting: dict[str, Any], searched: dict[str, Any]) -> str:
+    return ", ".join(f"{k}={v:.4g}" if isinstance(v, float) else f"{k}={v}"
+                     for k, v in setting.items() if k in searched) or "default"
+
+
+def _python(v: Any) -> Any:
+    return v.item() if isinstance(v, np.generic) else v
+
+
+def calibration_report(ds) -> dict[str, Any]:
+    """The JSON object of a calibration Dataset (what the calibrate command prints as JSON)."""
+    names = [n for n in ds.coords if n not in ("setting", "label")]
+
+    def setting(q: int) -> dict[str, Any]:
+        return {n: _python(ds[n].values[q]) for n in names if ds[n].values[q] is not None}
+
+    def row(q: int) -> dict[str, Any]:
+        gap = float(ds["fresh_gap_percent"].values[q])
+        return {"setting": setting(q), "revenue": float(ds["revenue_mean"].values[q]),
+                "stderr": float(ds["revenue_stderr"].values[q]),
+                "fresh_revenue": float(ds["fresh_revenue_mean"].values[q]),
+                "fresh_stderr": float(ds["fresh_revenue_stderr"].values[q]),
+                "fresh_gap_percent": gap if math.isfinite(gap) else None}
+
+    a = ds.attrs
+    n_trail = int(a["evaluations"])
+    return {
+        "heuristic": a["heuristic"], "paths": a["paths"], "seed": a["seed"],
+        "fresh_seed": a["fresh_seed"], "searched": json.loads(a["searched"]),
+        "default": row(int(a["default_setting"])), "tuned": row(int(a["tuned_setting"])),
+        "improvement_fresh": {"mean": float(ds["improvement_mean"]),
+                              "stderr": float(ds["improvement_stderr"]),
+                              "ci_low": float(ds["improvement_ci_low"]),
+                              "ci_high": float(ds["improvement_ci_high"])},
+        "reference": {"kind": a["reference_kind"], "method": a["reference_method"],
+                      "value": a["reference_value"]},
+        "evaluations": n_trail,
+        "trail": [{"setting": setting(q), "revenue": float(ds["revenue_mean"].values[q]),
+                   "stderr": float(ds["revenue_stderr"].values[q])} for q in range(n_trail)],
+    }
 
 
 @dataclass
@@ -236,7 +305,7 @@ def calibrate(
     fresh_seed: int | None = None,
     resolve: int = 0,
     reference: bool = True,
-) -> Calibration:
+):
     """Search ``ranges`` (setting name -> ``"LO:HI"`` or ``"a,b"``) for the best mean revenue.
 
     The tuned setting is the best one within the ranges; the default (the method's own settings,
@@ -255,20 +324,26 @@ def calibrate(
         Seed of the fresh streams the tuned and default settings are re-measured on (default
         ``seed + 1``).
     reference
-        Also solve the exact optimum (when it fits) or the best upper bound (dlp, lr) to report
-        against.
+        Also solve the yardstick (:func:`rmkit.workflows.reference.solve_reference`: the optimum
+        where it fits, else the best deterministic upper bound) to report against.
+
+    Returns
+    -------
+    xarray.Dataset
+        The search along ``setting`` (see :meth:`Calibration.to_dataset`);
+        :func:`calibration_report` turns it into the command's JSON.
     """
     from rmkit.methods.base import get_solver, positive_int
 
     check_compatible(network, demand)
     solver = get_solver(heuristic)
     if not solver.tags.gives_bid_prices:
-        raise InputError(f"--heuristic: {heuristic!r} is a bound without a booking control; "
+        raise InputError(f"heuristic: {heuristic!r} is a bound without a booking control; "
                          "pick a method with bid prices, booking limits or decisions")
     if not positive_int(paths):
-        raise InputError(f"--paths: must be a whole number >= 1, got {paths!r}")
+        raise InputError(f"paths: must be a whole number >= 1, got {paths!r}")
     if not ranges:
-        raise InputError(f"--param: give at least one setting to tune; valid for {heuristic}: "
+        raise InputError(f"ranges: give at least one setting to tune; valid for {heuristic}: "
                          f"{', '.join(tunable_names(solver))}")
     searchable = tunables(solver)
     valid = list(searchable)
@@ -277,7 +352,7 @@ def calibrate(
     discrete: dict[str, tuple] = {}
     for name, text in ranges.items():
         if name not in valid:
-            raise InputError(f"--param: {heuristic} has no tunable setting {name!r}; valid "
+            raise InputError(f"ranges: {heuristic} has no tunable setting {name!r}; valid "
                              f"settings: {', '.join(valid)}")
         kind, values = parse_range(name, text, searchable[name])
         (continuous if kind == "continuous" else discrete)[name] = values
@@ -299,13 +374,14 @@ def calibrate(
     assert best is not None
     fresh = seed + 1 if fresh_seed is None else int(fresh_seed)
     ref = solve_reference(network, demand, seed) if reference else Reference.none()
-    return Calibration(
+    found = Calibration(
         heuristic=heuristic, paths=int(paths), seed=int(seed), fresh_seed=fresh,
         searched=searched, default=default, tuned=best,
         default_fresh=objective({}, seed=fresh),
         tuned_fresh=objective({k: v for k, v in best.setting.items()}, seed=fresh),
         reference=ref, trail=list(objective.trail),
     )
+    return found.to_dataset()
 
 
 def _best_continuous(objective: _Objective, point: dict[str, Any],

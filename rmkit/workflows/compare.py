@@ -57,6 +57,7 @@ import numpy as np
 
 from rmkit._version import __version__
 from rmkit.errors import InputError, SolverError
+from rmkit.methods.base import kind_of
 from rmkit.model.demand import Arrivals, DemandModel, check_compatible
 from rmkit.model.network import Network
 from rmkit.results import SolveResult
@@ -106,11 +107,6 @@ class MethodRun:
         distinct = list(dict.fromkeys(self.warnings))
         more = f" (and {len(distinct) - 1} other kinds)" if len(distinct) > 1 else ""
         return f"{len(self.warnings)} warning(s), e.g.: {distinct[0]}{more}"
-
-
-def kind_of(solver: Solver) -> str:
-    tags = solver.tags
-    return "optimum" if tags.exact else "upper bound" if tags.upper_bound else "heuristic"
 
 
 def select_methods(methods: Sequence[str] | str | None) -> list[str]:
@@ -548,51 +544,27 @@ def _best_policy(runs: Sequence[MethodRun]) -> str:
     return max(simulated, key=lambda r: float(r.simulation["revenue_mean"])).name
 
 
-#: Variables of the comparison Dataset: name -> (dims, units, description).
-VARIABLES: dict[str, tuple[tuple[str, ...], str, str]] = {
-    "kind": (("method",), "", "optimum, upper bound or heuristic"),
-    "status": (("method",), "", "ran, skipped or failed"),
-    "reason": (("method",), "", "why a method was skipped or failed"),
-    "check": (("method",), "", "independent re-check of allocations and simulated paths"),
-    "warning": (("method",), "", "warnings raised while solving or simulating, counted"),
-    "value": (("method",), "currency", "optimum, upper bound or the method's own estimate"),
-    "value_stderr": (("method",), "currency", "standard error of a sampled value"),
-    "bid_price": (("method", "leg"), "currency per seat", "bid prices at period 0, full capacity"),
-    "bid_price_table": (("method", "period", "capacity", "leg"), "currency per seat",
-                        "bid price by period and seats left on the leg (exact: visit-weighted "
-                        "mean over the states the optimal policy visits)"),
-    "revenue": (("method", "path"), "currency", "simulated revenue per path"),
-    "revenue_mean": (("method",), "currency", "mean simulated revenue"),
-    "revenue_stderr": (("method",), "currency", "standard error of the mean revenue"),
-    "revenue_ci_low": (("method",), "currency", "95% confidence interval, low end"),
-    "revenue_ci_high": (("method",), "currency", "95% confidence interval, high end"),
-    "difference_mean": (("method",), "currency", "mean paired revenue difference vs best policy"),
-    "difference_stderr": (("method",), "currency", "paired standard error of the difference"),
-    "difference_ci_low": (("method",), "currency", "95% interval of the difference, low end"),
-    "difference_ci_high": (("method",), "currency", "95% interval of the difference, high end"),
-    "gap_percent": (("method",), "%", "(reference - mean revenue) / reference x 100"),
-    "bid_price_error_mean": (("method",), "currency per seat", "visit-weighted mean abs error"),
-    "bid_price_error_max": (("method",), "currency per seat", "max abs error over visits"),
-    "opportunity_cost_error_mean": (("method",), "currency", "visit-weighted mean abs error"),
-    "opportunity_cost_error_max": (("method",), "currency", "max abs error over visits"),
-    "load_factor_mean": (("method", "leg"), "1", "mean seats sold / capacity"),
-    "solve_seconds": (("method",), "s", "wall time of the solve from period 0"),
-    "simulate_seconds": (("method",), "s", "wall time of the simulation (with re-solves)"),
-}
+#: Variables of the comparison Dataset along ``method`` (names, core dims and units in
+#: :mod:`rmkit.schema`); ``kind`` is a coordinate along ``method``.
+VARIABLES = (
+    "status", "reason", "check", "warning", "value", "value_stderr", "bid_price", "bid_price_table",
+    "revenue", "revenue_mean", "revenue_stderr", "revenue_ci_low", "revenue_ci_high",
+    "difference_mean", "difference_stderr", "difference_ci_low", "difference_ci_high",
+    "gap_percent", *ERROR_NAMES, "load_factor_mean", "solve_seconds", "simulate_seconds",
+)
 
 
 def _method_dataset(frame: _Frame, run: MethodRun, best: MethodRun | None, ref: float):
-    import xarray as xr
-
-    from rmkit.workflows.simulate import summarize
+    from rmkit import schema
+    from rmkit.workflows.stats import summarize
 
     net, n_t = frame.network, frame.demand.n_periods
     m, width = net.n_legs, net.max_capacity + 1
     nan = math.nan
     res, sim = run.result, run.simulation
-    data: dict[str, Any] = {
-        "kind": run.kind, "status": run.status, "reason": run.reason, "check": run.check,
-        "warning": run.note(),
+    data: dict[str, Any] = {name: nan for name in VARIABLES}
+    data.update({
+        "status": run.status, "reason": run.reason, "check": run.check, "warning": run.note(),
         "value": res.value if res is not None else nan,
         "value_stderr": (res.stderr if res is not None and res.stderr is not None else nan),
         "bid_price": np.full(m, nan),
@@ -601,11 +573,7 @@ def _method_dataset(frame: _Frame, run: MethodRun, best: MethodRun | None, ref: 
         "load_factor_mean": np.full(m, nan),
         "solve_seconds": res.seconds if res is not None else nan,
         "simulate_seconds": run.simulate_seconds,
-    }
-    for name in ("revenue_mean", "revenue_stderr", "revenue_ci_low", "revenue_ci_high",
-                 "difference_mean", "difference_stderr", "difference_ci_low",
-                 "difference_ci_high", "gap_percent", *ERROR_NAMES):
-        data[name] = nan
+    })
     if res is not None and run.solver.tags.gives_bid_prices:
         if "bid_price_table" in res:
             data["bid_price_table"] = np.asarray(res["bid_price_table"], dtype=np.float64)
@@ -621,9 +589,9 @@ def _method_dataset(frame: _Frame, run: MethodRun, best: MethodRun | None, ref: 
         for name in ("revenue_mean", "revenue_stderr", "revenue_ci_low", "revenue_ci_high"):
             data[name] = float(sim[name])
         if best is not None:
-            mean, se, lo, hi = summarize(revenue - best.simulation["revenue"].values)
-            data.update(difference_mean=mean, difference_stderr=se, difference_ci_low=lo,
-                        difference_ci_high=hi)
+            d = summarize(revenue - best.simulation["revenue"].values)
+            data.update(difference_mean=d.mean, difference_stderr=d.stderr,
+                        difference_ci_low=d.ci_low, difference_ci_high=d.ci_high)
         if math.isfinite(ref) and ref:
             data["gap_percent"] = 100.0 * (ref - data["revenue_mean"]) / ref
     if frame.visits is not None and res is not None and run.solver.tags.gives_bid_prices:
@@ -634,15 +602,7 @@ def _method_dataset(frame: _Frame, run: MethodRun, best: MethodRun | None, ref: 
             errors = visit_weighted_errors(frame.visits, net.incidence, frame.exact_leg,
                                            frame.exact_cost, quoted_bid_prices(res, frame.visits))
         data.update(errors)
-    data_vars = {}
-    for name, (dims, units, description) in VARIABLES.items():
-        value = data[name]
-        if isinstance(value, str):
-            value = np.array(value, dtype=object)
-        data_vars[name] = xr.Variable(dims[1:], value, attrs={"units": units,
-                                                              "description": description}
-                                      if units else {"description": description})
-    return xr.Dataset(data_vars, coords=_coords(net, n_t, frame.paths))
+    return schema.dataset(data, coords=_coords(net, n_t, frame.paths))
 
 
 def _coords(network: Network, n_periods: int, paths: int) -> dict[str, Any]:
@@ -658,29 +618,27 @@ def _coords(network: Network, n_periods: int, paths: int) -> dict[str, Any]:
 def _assemble(frame: _Frame, runs: Sequence[MethodRun]):
     import xarray as xr
 
+    from rmkit import schema
+
     best = next((r for r in runs if r.name == frame.best), None)
     parts = [_method_dataset(frame, r, best, frame.reference.value) for r in runs]
     ds = xr.concat(parts, dim="method", join="exact", data_vars="all", coords="minimal",
                    compat="identical")
-    ds = ds.assign_coords(method=np.array([r.name for r in runs], dtype=object))
+    ds = ds.assign_coords(method=np.array([r.name for r in runs], dtype=object),
+                          kind=("method", np.array([r.kind for r in runs], dtype=object)))
     if frame.visits is not None:
         v = frame.visits
-        ds["visit_period"] = ("visit", v.period.astype(np.int32),
-                              {"description": "period of a visited state"})
-        ds["visit_capacity"] = (("visit", "leg"), v.state.astype(np.int32),
-                                {"units": "seats", "description": "seats left"})
-        ds["visit_weight"] = ("visit", v.weight, {"description": "share of (path, period) pairs"})
-        ds["exact_bid_price"] = (("visit", "leg"), v_inf_to_nan(frame.exact_leg),
-                                 {"units": "currency per seat",
-                                  "description": "V_{t+1}(x) - V_{t+1}(x - e_i); NaN at 0 seats"})
-        ds["exact_opportunity_cost"] = (("visit", "product"), v_inf_to_nan(frame.exact_cost),
-                                        {"units": "currency", "description":
-                                         "V_{t+1}(x) - V_{t+1}(x - A_j); NaN where not sellable"})
-        ds["exact_bid_price_table"] = (
-            ("period", "capacity", "leg"),
-            exact_bid_price_table(v, frame.exact_leg, frame.network, frame.demand.n_periods),
-            {"units": "currency per seat", "description": "exact bid price by period and seats "
-             "left on the leg: visit-weighted mean over the states the optimal policy visits"})
+        visit_vars = {
+            "visit_period": v.period.astype(np.int32),
+            "visit_capacity": v.state.astype(np.int32),
+            "visit_weight": v.weight,
+            "exact_bid_price": v_inf_to_nan(frame.exact_leg),
+            "exact_opportunity_cost": v_inf_to_nan(frame.exact_cost),
+            "exact_bid_price_table": exact_bid_price_table(v, frame.exact_leg, frame.network,
+                                                           frame.demand.n_periods),
+        }
+        for name, values in visit_vars.items():
+            ds[name] = schema.variable(name, values)
     for name, var in ds.data_vars.items():  # compressed when written to NetCDF
         if var.ndim and var.dtype.kind in "fi":
             ds[name].encoding.update({"zlib": True, "complevel": 4})

@@ -58,25 +58,10 @@ from rmkit.errors import InputError, ProblemTooLargeError
 from rmkit.model.demand import Arrivals, DemandModel, check_compatible
 from rmkit.model.network import Network
 from rmkit.workflows.policies import PolicySource, make_policy
+from rmkit.workflows.stats import CONFIDENCE, paired_differences, summarize
 
-CONFIDENCE = 0.95
 #: Refuse runs whose per-path arrays would need more memory than this (bytes).
 DEFAULT_MAX_BYTES = 4 * 2**30
-
-
-# ---------------------------------------------------------------- statistics
-def summarize(values: np.ndarray) -> tuple[float, float, float, float]:
-    """Mean, standard error and 95% Student-t confidence interval of per-path values."""
-    from scipy.stats import t as student_t
-
-    v = np.asarray(values, dtype=np.float64)
-    n = v.size
-    mean = float(v.mean())
-    if n < 2:
-        return mean, math.nan, math.nan, math.nan
-    se = float(v.std(ddof=1) / math.sqrt(n))
-    half = float(student_t.ppf(0.5 + CONFIDENCE / 2, n - 1)) * se
-    return mean, se, mean - half, mean + half
 
 
 # ---------------------------------------------------------------- schedule
@@ -311,28 +296,28 @@ def _check_run(
 
 # ---------------------------------------------------------------- datasets
 def _path_dataset(outcome: Outcome, network: Network, demand: DemandModel):
-    import xarray as xr
+    from rmkit import schema
 
     caps = np.asarray(network.capacities, dtype=np.float64)
     with np.errstate(invalid="ignore", divide="ignore"):
         load = np.where(caps > 0, (caps - outcome.seats_left) / np.where(caps > 0, caps, 1), np.nan)
-    mean, se, lo, hi = summarize(outcome.revenue)
-    ds = xr.Dataset(
+    summary = summarize(outcome.revenue)
+    loaded = caps > 0  # a leg without seats has no load factor (NaN), not a warning
+    load_mean = np.full(caps.size, np.nan)
+    if load.shape[0]:
+        load_mean[loaded] = load[:, loaded].mean(axis=0)
+    return schema.dataset(
         {
-            "revenue": (("path",), outcome.revenue, {"units": "currency"}),
-            "accepted": (("path", "product"), outcome.accepted, {"units": "requests"}),
-            "no_purchase": (("path", "customer"), outcome.no_purchase,
-                            {"units": "customers", "description": "arrivals who bought nothing "
-                             "(refused requests, for independent demand)"}),
-            "seats_left": (("path", "leg"), outcome.seats_left, {"units": "seats"}),
-            "load_factor": (("path", "leg"), load, {"units": "1",
-                                                    "description": "seats sold / capacity"}),
-            "revenue_mean": ((), mean, {"units": "currency"}),
-            "revenue_stderr": ((), se, {"units": "currency"}),
-            "revenue_ci_low": ((), lo, {"units": "currency", "confidence": CONFIDENCE}),
-            "revenue_ci_high": ((), hi, {"units": "currency", "confidence": CONFIDENCE}),
-            "load_factor_mean": (("leg",), np.nanmean(load, axis=0) if load.size else load,
-                                 {"units": "1"}),
+            "revenue": outcome.revenue,
+            "accepted": outcome.accepted,
+            "no_purchase": outcome.no_purchase,
+            "seats_left": outcome.seats_left,
+            "load_factor": load,
+            "revenue_mean": summary.mean,
+            "revenue_stderr": summary.stderr,
+            "revenue_ci_low": summary.ci_low,
+            "revenue_ci_high": summary.ci_high,
+            "load_factor_mean": load_mean,
         },
         coords={
             "path": np.arange(outcome.revenue.size),
@@ -341,7 +326,6 @@ def _path_dataset(outcome: Outcome, network: Network, demand: DemandModel):
             "customer": np.array(demand.customer_type_ids(network), dtype=object),
         },
     )
-    return ds
 
 
 def _run_attrs(outcome: Outcome, seed: int, paths: int, resolve: int, network: Network) -> dict:
@@ -484,6 +468,8 @@ def compare_policies(
     """
     import xarray as xr
 
+    from rmkit import schema
+
     items = _labelled(policies)
     if len(items) < 2:
         raise InputError(f"policies: compare needs two or more policies, got {len(items)}")
@@ -511,14 +497,14 @@ def compare_policies(
     per_policy = [_path_dataset(o, network, demand) for o in outcomes]
     ds = xr.concat(per_policy, dim="policy", join="exact")
     ds = ds.assign_coords(policy=np.array(labels, dtype=object))
-    ds["control"] = ("policy", np.array([o.control for o in outcomes], dtype=object))
-    ds["parameters"] = (
-        "policy",
-        np.array([json.dumps(o.parameters, sort_keys=True, default=str) for o in outcomes],
-                 dtype=object),
-    )
-    ds["solves"] = ("policy", np.array([o.solves for o in outcomes], dtype=np.int64))
-    ds["seconds"] = ("policy", np.array([o.seconds for o in outcomes]), {"units": "s"})
+    lead = ("policy",)
+    ds["control"] = schema.variable("control", np.array([o.control for o in outcomes],
+                                                        dtype=object), lead)
+    ds["parameters"] = schema.variable("parameters", np.array(
+        [json.dumps(o.parameters, sort_keys=True, default=str) for o in outcomes], dtype=object),
+        lead)
+    ds["solves"] = schema.variable("solves", np.array([o.solves for o in outcomes], np.int64), lead)
+    ds["seconds"] = schema.variable("seconds", np.array([o.seconds for o in outcomes]), lead)
     _add_differences(ds, np.stack([o.revenue for o in outcomes]), labels)
     if bound is not None:
         _add_gaps(ds, *_bound_value(bound, network, demand, int(seed)))
@@ -538,40 +524,31 @@ def compare_policies(
 
 
 def _add_differences(ds, revenue: np.ndarray, labels: list[str]) -> None:
-    from scipy.stats import t as student_t
+    from rmkit import schema
 
-    k, n = revenue.shape
-    diff = revenue[:, None, :] - revenue[None, :, :]
-    mean = diff.mean(axis=2)
-    if n > 1:
-        paired = diff.std(axis=2, ddof=1) / math.sqrt(n)
-        var = revenue.var(axis=1, ddof=1) / n
-        unpaired = np.sqrt(var[:, None] + var[None, :])
-        half = float(student_t.ppf(0.5 + CONFIDENCE / 2, n - 1)) * paired
-    else:
-        paired = unpaired = half = np.full((k, k), np.nan)
-    dims = ("policy", "versus")
+    d = paired_differences(revenue)
+    lead = ("policy", "versus")
     ds.coords["versus"] = np.array(labels, dtype=object)
-    ds["difference_mean"] = (dims, mean, {"units": "currency", "description": "policy - versus"})
-    ds["difference_stderr"] = (dims, paired, {"units": "currency",
-                                              "description": "paired (common random numbers)"})
-    ds["difference_stderr_unpaired"] = (dims, unpaired, {"units": "currency",
-                                                         "description": "as if independent"})
-    ds["difference_ci_low"] = (dims, mean - half, {"units": "currency"})
-    ds["difference_ci_high"] = (dims, mean + half, {"units": "currency"})
+    for name, values in (("difference_mean", d.mean), ("difference_stderr", d.stderr),
+                         ("difference_stderr_unpaired", d.stderr_unpaired),
+                         ("difference_ci_low", d.ci_low), ("difference_ci_high", d.ci_high)):
+        ds[name] = schema.variable(name, values, lead)
 
 
 def _add_gaps(ds, value: float, stderr: float, source: str) -> None:
     from scipy.stats import norm
 
+    from rmkit import schema
+
     mean = ds["revenue_mean"].values
     se = np.sqrt(ds["revenue_stderr"].values ** 2 + stderr**2)
     z = float(norm.ppf(0.5 + CONFIDENCE / 2))
     gap = value - mean
-    ds["bound"] = ((), value, {"units": "currency", "source": source})
-    ds["bound_stderr"] = ((), stderr, {"units": "currency"})
-    ds["gap"] = ("policy", gap, {"units": "currency", "description": "bound - mean revenue"})
-    ds["gap_percent"] = ("policy", 100.0 * gap / value if value else np.full_like(gap, np.nan),
-                         {"units": "%"})
-    ds["gap_ci_low"] = ("policy", gap - z * se, {"units": "currency"})
-    ds["gap_ci_high"] = ("policy", gap + z * se, {"units": "currency"})
+    lead = ("policy",)
+    ds["bound"] = schema.variable("bound", value, source=source)
+    ds["bound_stderr"] = schema.variable("bound_stderr", stderr)
+    ds["gap"] = schema.variable("gap", gap, lead)
+    ds["gap_percent"] = schema.variable(
+        "gap_percent", 100.0 * gap / value if value else np.full_like(gap, np.nan), lead)
+    ds["gap_ci_low"] = schema.variable("gap_ci_low", gap - z * se, lead)
+    ds["gap_ci_high"] = schema.variable("gap_ci_high", gap + z * se, lead)

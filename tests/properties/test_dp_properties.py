@@ -15,8 +15,8 @@ from hypothesis import given
 from hypothesis import strategies as st
 
 from rmkit import get_solver
+from rmkit.methods.shared.leg_dp import single_leg_dp
 from rmkit.methods.shared.network_dp import grid_states, grid_strides, solve_network_dp
-from rmkit.methods.shared.single_leg import single_leg_dp
 from tests.instances import random_problem
 
 TOL = 1e-9

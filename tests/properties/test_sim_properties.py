@@ -39,7 +39,7 @@ def controlled_problems(draw):
         n_buckets = int(rng.integers(1, 4))
         variables = {
             "booking_limit": rng.integers(0, net.max_capacity + 2, size=(m, n_buckets)),
-            "bucket": rng.integers(-1, n_buckets, size=(m, n)),
+            "product_bucket": rng.integers(-1, n_buckets, size=(m, n)),
         }
     else:
         return net, dem, brute_force_decisions(net, dem)[1], control
@@ -98,9 +98,9 @@ def test_open_controls_equal_fcfs_and_closed_ones_sell_nothing(problem, seed):
     np.testing.assert_array_equal(run(bid_price=np.zeros(m)), fcfs)
     open_limits = np.full((m, 1), float(net.max_capacity))
     np.testing.assert_array_equal(
-        run(booking_limit=open_limits, bucket=np.where(net.incidence > 0, 0, -1)), fcfs)
+        run(booking_limit=open_limits, product_bucket=np.where(net.incidence > 0, 0, -1)), fcfs)
     assert not run(bid_price=np.full(m, float(net.fares.max()) * 1.01)).any()
-    assert not run(booking_limit=open_limits, bucket=np.full((m, n), -1)).any()
+    assert not run(booking_limit=open_limits, product_bucket=np.full((m, n), -1)).any()
 
 
 @given(small_networks(), st.integers(0, 1000))

@@ -13,7 +13,7 @@ marginal value beats the low fare: ``f_0 P(D_0 >= y) > f_1``. Continuous (normal
 
 i.e. ``>=`` inside the tail (the y-th seat is used when demand reaches y) and a strict ``>``
 against the fare ratio (a seat worth exactly the low fare goes to the low fare). This is the
-same comparison as the single-leg DP (:mod:`rmkit.methods.shared.single_leg`). Example: fares 100/60, Poisson
+same comparison as the single-leg DP (:mod:`rmkit.methods.shared.leg_dp`). Example: fares 100/60, Poisson
 mean 80: ``P(D >= 78) = 0.6034 > 0.6 >= P(D >= 79) = 0.5594``, so y = 78. The expected marginal
 value of the x-th seat is ``f_0 P(D_0 >= x)`` (:func:`marginal_seat_value`).
 
@@ -359,7 +359,7 @@ def _check_size(capacity: int, k: int, work: float, what: str) -> None:
         raise ProblemTooLargeError(
             f"capacity: {what} with {capacity} seats and {k} classes needs about "
             f"{memory / 2**30:.1f} GiB and {work:.1e} multiply-adds (limits {MEMORY_LIMIT / 2**30:.0f} "
-            f"GiB, {WORK_LIMIT:.0e}); use fewer seats, or the single-leg DP (rmkit.methods.shared.single_leg)"
+            f"GiB, {WORK_LIMIT:.0e}); use fewer seats, or the single-leg DP (rmkit.methods.shared.leg_dp)"
         )
 
 
