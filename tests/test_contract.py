@@ -1,4 +1,5 @@
-"""The shared solver contract: every registered method passes these checks automatically."""
+"""The shared solver contract: every registered method passes these checks automatically, on
+every registered demand kind it accepts, and refuses the others with a one-line reason."""
 
 from __future__ import annotations
 
@@ -13,14 +14,78 @@ import pytest
 import xarray as xr
 
 from rmkit import SCHEMA, STATUSES, BookingState, InputError, load_all
+from rmkit.model.demand import demand_kinds
 from tests.instances import brute_force_values, one_seat_problem, small_problem
 
 REGISTRY = load_all()
+KINDS = demand_kinds()
 
 
 @pytest.fixture(params=sorted(REGISTRY))
 def solver(request):
     return REGISTRY[request.param]()
+
+
+def kind_problem(kind: str):
+    """The small network with a demand model of ``kind`` (its own random example; for
+    independent demand the fixture every other test of this file uses)."""
+    if kind == "independent":
+        return small_problem()
+    net, _ = small_problem()
+    return net, KINDS[kind].random_example(net, 12, seed=7)
+
+
+CASES = [(name, kind) for name in sorted(REGISTRY) for kind in sorted(KINDS)]
+ACCEPTED = [c for c in CASES if c[1] in REGISTRY[c[0]].demand_kinds]
+REFUSED = [c for c in CASES if c[1] not in REGISTRY[c[0]].demand_kinds]
+
+
+def _ids(cases):
+    return [f"{name}-{kind}" for name, kind in cases]
+
+
+@pytest.fixture(params=ACCEPTED, ids=_ids(ACCEPTED))
+def accepted(request):
+    """(solver, network, demand) for every method on every demand kind it accepts."""
+    name, kind = request.param
+    solver = REGISTRY[name]()
+    net, dem = kind_problem(kind)
+    if solver.refusal_reason(net, dem) is not None:
+        pytest.skip(solver.refusal_reason(net, dem))
+    return solver, net, dem
+
+
+def test_every_method_declares_registered_demand_kinds(solver):
+    assert solver.demand_kinds and set(solver.demand_kinds) <= set(KINDS)
+
+
+@pytest.mark.parametrize(("name", "kind"), REFUSED or [pytest.param("", "", marks=pytest.mark.skip(
+    reason="every method accepts every registered demand kind"))], ids=_ids(REFUSED) or None)
+def test_a_demand_kind_it_does_not_solve_is_refused_in_one_line(name, kind):
+    solver = REGISTRY[name]()
+    net, dem = kind_problem(kind)
+    reason = solver.refusal_reason(net, dem)
+    assert reason and "\n" not in reason and kind in reason
+    with pytest.raises(InputError, match=f"{name}: cannot run on this problem: .*{kind}") as err:
+        solver.solve(net, dem)
+    assert "\n" not in str(err.value)
+
+
+def test_runs_on_every_kind_it_accepts(accepted):
+    """Deterministic, non-mutating, schema-true Dataset with provenance, on every kind."""
+    from rmkit import schema
+
+    solver, net, dem = accepted
+    before = _snapshot(net, dem)
+    first = solver.solve(net, dem, seed=1).to_dataset()
+    second = solver.solve(net, dem, seed=1).to_dataset()
+    xr.testing.assert_identical(_comparable(first), _comparable(second))
+    for a, b in zip(before, _snapshot(net, dem), strict=True):
+        np.testing.assert_array_equal(a, b)
+    assert schema.check(first) == []
+    assert first.attrs["method"] == solver.name and "value" in first
+    mid = solver.solve(net, dem, state=BookingState(period=dem.n_periods // 2), seed=1)
+    assert mid.period == dem.n_periods // 2
 
 
 def _comparable(ds: xr.Dataset) -> xr.Dataset:
@@ -34,7 +99,7 @@ def _snapshot(net, dem):
         net.incidence.copy(),
         net.capacities.copy(),
         net.fares.copy(),
-        dem.probabilities.copy(),
+        *(a.copy() for a in dem.content_arrays()),
     )
 
 
@@ -74,18 +139,6 @@ def test_bounds_against_brute_force(solver):
     elif solver.tags.upper_bound:
         slack = 3 * res.stderr if res.stderr is not None else 1e-7 * optimum
         assert res.value >= optimum - slack
-
-
-def test_deterministic_and_non_mutating(solver):
-    net, dem = small_problem()
-    if solver.accepts(net, dem) is not None:
-        pytest.skip(solver.accepts(net, dem))
-    before = _snapshot(net, dem)
-    first = solver.solve(net, dem, seed=1).to_dataset()
-    second = solver.solve(net, dem, seed=1).to_dataset()
-    xr.testing.assert_identical(_comparable(first), _comparable(second))
-    for a, b in zip(before, _snapshot(net, dem), strict=True):
-        np.testing.assert_array_equal(a, b)
 
 
 def test_dataset_schema_and_provenance(solver, tmp_path):

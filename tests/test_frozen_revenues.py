@@ -54,23 +54,16 @@ def test_the_same_seed_draws_the_same_customers(key):
     assert hashlib.sha256(arrivals.customer.tobytes()).hexdigest() == STREAM_HASHES[key]
 
 
-@pytest.mark.parametrize("key", sorted(EXAMPLE_RUNS), ids=str)
-def test_example_revenues_are_unchanged(key):
-    policy, settings = key
-    scen = _scenario("example")
-    ds = simulate(scen.network, scen.demand, policy, paths=300, seed=20261202, **dict(settings))
-    mean, first, refused = EXAMPLE_RUNS[key]
-    assert float(ds.revenue_mean) == mean
-    assert tuple(float(v) for v in ds.revenue.values[:3]) == first
-    assert int(ds.no_purchase.sum()) == refused
+RUNS = {**{("example", 300, 20261202, *key): v for key, v in EXAMPLE_RUNS.items()},
+        **{("rm_200_4_1.6_8.0", 200, 7, *key): v for key, v in PUBLIC_RUNS.items()}}
 
 
-@pytest.mark.parametrize("key", sorted(PUBLIC_RUNS), ids=str)
-def test_public_instance_revenues_are_unchanged(key):
-    policy, settings = key
-    scen = _scenario("rm_200_4_1.6_8.0")
-    ds = simulate(scen.network, scen.demand, policy, paths=200, seed=7, **dict(settings))
-    mean, first, refused = PUBLIC_RUNS[key]
+@pytest.mark.parametrize("key", sorted(RUNS), ids=str)
+def test_revenues_are_unchanged(key):
+    name, paths, seed, policy, settings = key
+    scen = _scenario(name)
+    ds = simulate(scen.network, scen.demand, policy, paths=paths, seed=seed, **dict(settings))
+    mean, first, refused = RUNS[key]
     assert float(ds.revenue_mean) == mean
     assert tuple(float(v) for v in ds.revenue.values[:3]) == first
     assert int(ds.no_purchase.sum()) == refused

@@ -143,13 +143,13 @@ def test_kernel_matches_its_py_func(control, stop_after_sale):
     result = kind.example_result(net, dem, 11)
     arrays = kind.arrays(result, net, net.capacities)
     arrivals = dem.sample_arrivals(6, 11)
-    p, m, n = arrivals.n_paths, net.n_legs, net.n_products
+    p, n = arrivals.n_paths, net.n_products
     width = max(kind.memory_width(arrays), 1)
 
     def book():
         return [np.tile(net.capacities, (p, 1)).astype(np.int64), np.zeros(p),
                 np.zeros((p, n), np.int64), np.zeros((p, n), np.int64),
-                np.zeros((p, m, width), np.int64), np.full(p, 1, np.int64)]
+                np.zeros((p, width), np.int64), np.full(p, 1, np.int64)]
 
     paths = np.array([0, 2, 3, 5], dtype=np.int64)
     outs = kernel_both_ways(
@@ -481,7 +481,7 @@ def test_cli_bad_input_exits_2(capsys):
 
 # ---------------------------------------------------------------- registered methods
 def _policies_with_controls():
-    return sorted(n for n, cls in REGISTRY.items() if cls.tags.gives_bid_prices)
+    return sorted(n for n, cls in REGISTRY.items() if cls.tags.control)
 
 
 @pytest.mark.parametrize("name", _policies_with_controls())
@@ -499,7 +499,7 @@ def test_every_registered_policy_stays_below_the_optimum(name):
 
 
 def _resolving_policies():
-    return sorted(n for n, cls in REGISTRY.items() if cls.tags.gives_bid_prices
+    return sorted(n for n, cls in REGISTRY.items() if cls.tags.control
                   and get_control(cls.tags.control).sale_sensitive and not cls.tags.stochastic)
 
 

@@ -15,9 +15,9 @@ Class facts the simulator and the workflows read (never a control's name):
 ``scalable``
     The control applies bid prices that :meth:`Control.scaled` can multiply (calibration).
 ``memory``
-    The control keeps per-path memory (``memo``, width :meth:`Control.memory_width` per leg),
-    restarted whenever the control is recomputed (nested limits count the sales since they were
-    set).
+    The control keeps per-path memory (``memo[k, :]``, :meth:`Control.memory_width` whole
+    numbers per path, laid out as the control likes), restarted whenever it is recomputed
+    (nested limits count the sales since they were set).
 """
 
 from __future__ import annotations
@@ -76,7 +76,7 @@ class Control:
 
     @classmethod
     def memory_width(cls, arrays: NamedTuple) -> int:
-        """Columns of per-path memory per leg the control uses (0: none)."""
+        """Whole numbers of per-path memory the control uses (0: none)."""
         return 0
 
     @classmethod

@@ -66,8 +66,8 @@ class StoredDecisions(Control):
         n = network.n_products
         shape = (demand.n_periods, network.state_space_size, (n + 7) // 8)
         bits = rng.integers(0, 256, size=shape, dtype=np.uint8)
-        strides = np.ones(network.n_legs, dtype=np.int64)
-        for i in range(network.n_legs - 2, -1, -1):
-            strides[i] = strides[i + 1] * (int(network.capacities[i + 1]) + 1)
+        from rmkit.model.network import grid_strides
+
+        strides = grid_strides(network.capacities)
         return SolveResult("example-decisions", network, demand.n_periods, {},
                            policy=StatePolicy(bits, strides))

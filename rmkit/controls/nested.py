@@ -3,7 +3,8 @@
 On leg i with bucket ``b = bucket[i, j]`` (-1: closed), j is open iff
 ``sum_{b' >= b} sold[i, b'] + 1 <= limit[i, b]``, counting the sales made since the limits were
 set (Talluri & van Ryzin 2004, section 2.1.1: nested limits, bucket 0 the highest). The sales
-counts are the control's per-path memory; a re-solve sets new limits and restarts them.
+counts are the control's per-path memory (``memo[k, i * buckets + b]``); a re-solve sets new
+limits and restarts them.
 """
 
 from __future__ import annotations
@@ -32,7 +33,7 @@ def offers(ctrl, k, t, j, seats, memo, net):
             return False
         taken = 0
         for bb in range(b, n_buckets):
-            taken += memo[k, i, bb]
+            taken += memo[k, i * n_buckets + bb]
         if taken + 1 > ctrl.limit[i, b]:
             return False
     return True
@@ -40,9 +41,10 @@ def offers(ctrl, k, t, j, seats, memo, net):
 
 def on_sale(ctrl, k, j, memo, net):
     fares, leg_ptr, leg_list = net
+    n_buckets = ctrl.limit.shape[1]
     for q in range(leg_ptr[j], leg_ptr[j + 1]):
         i = leg_list[q]
-        memo[k, i, ctrl.bucket[i, j]] += 1
+        memo[k, i * n_buckets + ctrl.bucket[i, j]] += 1
 
 
 @register_control
@@ -78,7 +80,7 @@ class NestedLimitControl(Control):
 
     @classmethod
     def memory_width(cls, arrays: NestedArrays) -> int:
-        return int(arrays.limit.shape[1])
+        return int(arrays.limit.size)  # sales by (leg, bucket), leg-major
 
     @classmethod
     def example_result(cls, network, demand, seed):

@@ -16,7 +16,8 @@ demand kind plugs in without an edit here:
 ``control_records_sale(ctrl, k, j, memo, net)`` lets a control keep per-path memory (nested
 limits count sales by bucket); controls that need none register nothing for it.
 
-``replay_paths`` is compiled once per (control, demand kind) pair of array types and cached. Arrays
+``replay_paths`` is compiled once per (control, demand kind) pair of array types and cached
+(:func:`loop_for` picks an uncached twin for types defined outside rmkit). Arrays
 and scalars in, preallocated outputs updated in place, no RNG (customers are drawn beforehand),
 no validation (the Python side checks shapes). Called from Python code (tests, ``.py_func``),
 the three functions dispatch on the argument's type to the registered Python implementations.
@@ -176,3 +177,15 @@ def replay_paths(ctrl, dem, customer, uniform, paths, stop, stop_after_sale, net
             else:
                 lost[k, c] += 1
         next_period[k] = t
+
+
+#: The same loop without an on-disk cache, for controls or demand kinds defined outside rmkit: a
+#: cached specialization for a type from another module would make the cache index unreadable in
+#: every process that cannot import that module.
+replay_paths_uncached = njit(cache=False)(replay_paths.py_func)
+
+
+def loop_for(ctrl, dem):
+    """The replay loop to use for these array types: cached when both types are rmkit's own."""
+    own = all(type(a).__module__.startswith("rmkit.") for a in (ctrl, dem))
+    return replay_paths if own else replay_paths_uncached

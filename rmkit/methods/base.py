@@ -37,8 +37,8 @@ class Tags:
     stochastic: bool = False  # uses random samples (seeded)
     small_state_space: bool = False  # only runs where the network DP state space is small
     capacity_dependent: bool = False  # bid prices depend on seats left and period
-    gives_bid_prices: bool = True  # False for pure bounds (e.g. perfect hindsight)
-    control: str = "bid_price"  # the booking control (rmkit.controls) the simulator applies
+    gives_bid_prices: bool = True  # leg bid prices (False for pure bounds, e.g. perfect hindsight)
+    control: str = "bid_price"  # the booking control (rmkit.controls) it steers sales by; "": none
     reference: bool = False  # cheap and sure enough to solve as a yardstick (optimum or bound)
     needs_displacement: bool = False  # counts network fares from another method's bid prices
 

@@ -36,7 +36,7 @@ class PerfectHindsight(Solver):
     """Expected perfect-hindsight LP value (Talluri & van Ryzin 1999), sampled; an upper bound."""
 
     name = "ph"
-    tags = Tags(upper_bound=True, stochastic=True, gives_bid_prices=False)
+    tags = Tags(upper_bound=True, stochastic=True, gives_bid_prices=False, control="")
     citation = (
         "K. T. Talluri and G. J. van Ryzin (1999), A randomized linear programming method for "
         "computing network bid prices, Transportation Science 33(2):207-216"

@@ -103,13 +103,11 @@ def check_arrival_table(p: np.ndarray, field_name: str, what: str = "probability
 
 
 class _DemandMeta(abc.ABCMeta):
-    """``DemandModel(p)`` is shorthand for ``IndependentDemand(p)`` (the first demand kind)."""
+    """``DemandModel(...)`` is shorthand for the default kind, ``IndependentDemand(p)``."""
 
     def __call__(cls, *args: Any, **kwargs: Any):
         if cls is DemandModel:
-            from rmkit.model.independent import IndependentDemand
-
-            return IndependentDemand(*args, **kwargs)
+            return demand_kinds()[DEFAULT_KIND](*args, **kwargs)
         return super().__call__(*args, **kwargs)
 
 
@@ -254,6 +252,8 @@ def demand_kinds() -> dict[str, type[DemandModel]]:
 
 #: Modules of the demand kinds rmkit ships (each registers itself on import).
 _BUNDLED_KINDS = ("rmkit.model.independent",)
+#: The kind ``DemandModel(...)`` builds: the standard independent-demand model.
+DEFAULT_KIND = "independent"
 
 
 def load_factor(network: Network, demand: DemandModel) -> float:

@@ -46,6 +46,16 @@ class Product:
     destination: str = ""
 
 
+def grid_strides(capacities: np.ndarray) -> np.ndarray:
+    """Row-major strides over the state grid ``(c_0+1, ..., c_{m-1}+1)``, last leg stride 1:
+    the flat index of seats left x is ``sum_i x_i * stride_i`` (exact DP, stored policies)."""
+    sizes = np.asarray(capacities, dtype=np.int64) + 1
+    strides = np.ones(sizes.size, dtype=np.int64)
+    for i in range(sizes.size - 2, -1, -1):
+        strides[i] = strides[i + 1] * sizes[i + 1]
+    return strides
+
+
 def _readonly(a: np.ndarray) -> np.ndarray:
     a.setflags(write=False)
     return a

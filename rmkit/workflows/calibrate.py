@@ -337,7 +337,7 @@ def calibrate(
 
     check_compatible(network, demand)
     solver = get_solver(heuristic)
-    if not solver.tags.gives_bid_prices:
+    if not solver.tags.control:
         raise InputError(f"heuristic: {heuristic!r} is a bound without a booking control; "
                          "pick a method with bid prices, booking limits or decisions")
     if not positive_int(paths):

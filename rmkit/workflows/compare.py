@@ -359,7 +359,7 @@ def simulate_runs(
     from rmkit.workflows.simulate import simulate
 
     for run in runs:
-        if run.status != "ran" or run.result is None or not run.solver.tags.gives_bid_prices:
+        if run.status != "ran" or run.result is None or not run.solver.tags.control:
             continue
         if progress:
             progress(f"simulating {run.name}")

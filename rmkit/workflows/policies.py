@@ -71,7 +71,7 @@ class SolverPolicy:
 
     def __post_init__(self) -> None:
         self.label = self.label or self.solver.name
-        if not self.solver.tags.gives_bid_prices:
+        if not self.solver.tags.control:
             raise InputError(
                 f"policy: {self.solver.name!r} is a bound without a booking control; pick a "
                 "method that gives bid prices, booking limits or decisions"
@@ -175,4 +175,4 @@ def policy_names() -> list[str]:
     from rmkit.methods.base import load_all
 
     plain = sorted(n for n, c in load_controls().items() if not c.needs_result)
-    return plain + sorted(n for n, s in load_all().items() if s.tags.gives_bid_prices)
+    return plain + sorted(n for n, s in load_all().items() if s.tags.control)

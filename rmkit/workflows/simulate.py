@@ -56,7 +56,7 @@ import numpy as np
 from rmkit._version import __version__
 from rmkit.errors import InputError, ProblemTooLargeError
 from rmkit.model.demand import Arrivals, DemandModel, check_compatible
-from rmkit.model.network import Network
+from rmkit.model.network import Network, grid_strides
 from rmkit.workflows.policies import PolicySource, make_policy
 from rmkit.workflows.stats import CONFIDENCE, paired_differences, summarize
 
@@ -111,20 +111,20 @@ class _Book:
 
     @classmethod
     def start(cls, network: Network, n_paths: int, n_types: int) -> _Book:
-        m, n = network.n_legs, network.n_products
+        n = network.n_products
         return cls(
             seats=np.tile(np.asarray(network.capacities, dtype=np.int64), (n_paths, 1)),
             revenue=np.zeros(n_paths),
             accepted=np.zeros((n_paths, n), dtype=np.int64),
             lost=np.zeros((n_paths, n_types), dtype=np.int64),
-            memo=np.zeros((n_paths, m, 0), dtype=np.int64),
+            memo=np.zeros((n_paths, 0), dtype=np.int64),
             next_period=np.zeros(n_paths, dtype=np.int64),
         )
 
     def room_for_memory(self, width: int) -> None:
-        if self.memo.shape[2] < width:
-            grown = np.zeros(self.memo.shape[:2] + (width,), dtype=np.int64)
-            grown[:, :, : self.memo.shape[2]] = self.memo
+        if self.memo.shape[1] < width:
+            grown = np.zeros((self.memo.shape[0], width), dtype=np.int64)
+            grown[:, : self.memo.shape[1]] = self.memo
             self.memo = grown
 
     def arrays(self) -> tuple[np.ndarray, ...]:
@@ -143,15 +143,6 @@ def incidence_lists(network: Network) -> tuple[np.ndarray, np.ndarray]:
 def kernel_network(network: Network) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """``(fares, leg_ptr, leg_list)``, the network as the replay kernel reads it."""
     return (np.ascontiguousarray(network.fares, dtype=np.float64), *incidence_lists(network))
-
-
-def grid_strides(capacities: np.ndarray) -> np.ndarray:
-    """Row-major strides over ``(c_0+1, ..., c_{m-1}+1)``, last leg stride 1."""
-    sizes = np.asarray(capacities, dtype=np.int64) + 1
-    strides = np.ones(sizes.size, dtype=np.int64)
-    for i in range(sizes.size - 2, -1, -1):
-        strides[i] = strides[i + 1] * sizes[i + 1]
-    return strides
 
 
 def _groups(book: _Book, pending: np.ndarray) -> list[tuple[int, np.ndarray, np.ndarray]]:
@@ -186,7 +177,7 @@ def replay(
     With ``trace`` the outcome records the flat grid state (over the network's full capacities)
     at the start of every period of every path.
     """
-    from rmkit.kernels.replay import replay_paths
+    from rmkit.kernels.replay import loop_for
 
     started = time.perf_counter()
     n_paths, n_periods = arrivals.customer.shape
@@ -231,8 +222,8 @@ def replay(
                 book.memo[idx] = 0  # the control's memory restarts with each new control
             nxt = np.searchsorted(points, period, side="right")
             stop = int(points[nxt]) if nxt < points.size else n_periods
-            replay_paths(arrays, dem, arrivals.customer, arrivals.uniform, idx, stop, every_sale,
-                         net, book.arrays(), states, strides)
+            loop_for(arrays, dem)(arrays, dem, arrivals.customer, arrivals.uniform, idx, stop,
+                                  every_sale, net, book.arrays(), states, strides)
         pending = np.flatnonzero(book.next_period < n_periods)
     _warn_inexact(source.label, statuses, solves)
     return Outcome(

@@ -138,7 +138,7 @@ def test_kernel_equals_its_interpreted_self(case, seed, stop_after_sale):
     def book():
         return [np.tile(net.capacities, (p, 1)).astype(np.int64), np.zeros(p),
                 np.zeros((p, net.n_products), np.int64), np.zeros((p, net.n_products), np.int64),
-                np.zeros((p, net.n_legs, width), np.int64), np.zeros(p, np.int64)]
+                np.zeros((p, width), np.int64), np.zeros(p, np.int64)]
 
     books = kernel_both_ways(
         (arrays, dem.kernel_data(), arrivals.customer, arrivals.uniform,

@@ -40,7 +40,7 @@ import numpy as np
 
 from rmkit.errors import InputError, ProblemTooLargeError
 from rmkit.model.demand import DemandModel, check_compatible
-from rmkit.model.network import Network
+from rmkit.model.network import Network, grid_strides
 
 #: Updates (state x product x period) per second assumed by the run-time estimate: a
 #: conservative figure for this kernel on one core of a current x86 machine.
@@ -64,15 +64,6 @@ def pipeline_slots(n_states: int) -> tuple[int, int]:
 
 
 # ------------------------------------------------------------------ grid
-def grid_strides(capacities: np.ndarray) -> np.ndarray:
-    """Row-major strides over ``(c_0+1, ..., c_{m-1}+1)``, last leg stride 1."""
-    sizes = np.asarray(capacities, dtype=np.int64) + 1
-    strides = np.ones(sizes.size, dtype=np.int64)
-    for i in range(sizes.size - 2, -1, -1):
-        strides[i] = strides[i + 1] * sizes[i + 1]
-    return strides
-
-
 def flat_index(capacity: np.ndarray, strides: np.ndarray) -> np.ndarray:
     """Flat grid index of capacity vectors (shape ``(..., m)`` -> ``(...)``)."""
     return np.asarray(capacity, dtype=np.int64) @ strides
