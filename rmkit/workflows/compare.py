@@ -556,7 +556,7 @@ VARIABLES = (
 
 def _method_dataset(frame: _Frame, run: MethodRun, best: MethodRun | None, ref: float):
     from rmkit import schema
-    from rmkit.workflows.stats import summarize
+    from rmkit.workflows.stats import paired_differences
 
     net, n_t = frame.network, frame.demand.n_periods
     m, width = net.n_legs, net.max_capacity + 1
@@ -589,9 +589,9 @@ def _method_dataset(frame: _Frame, run: MethodRun, best: MethodRun | None, ref: 
         for name in ("revenue_mean", "revenue_stderr", "revenue_ci_low", "revenue_ci_high"):
             data[name] = float(sim[name])
         if best is not None:
-            d = summarize(revenue - best.simulation["revenue"].values)
-            data.update(difference_mean=d.mean, difference_stderr=d.stderr,
-                        difference_ci_low=d.ci_low, difference_ci_high=d.ci_high)
+            d = paired_differences(revenue[None, :], best.simulation["revenue"].values[None, :])
+            data.update(difference_mean=d.mean[0, 0], difference_stderr=d.stderr[0, 0],
+                        difference_ci_low=d.ci_low[0, 0], difference_ci_high=d.ci_high[0, 0])
         if math.isfinite(ref) and ref:
             data["gap_percent"] = 100.0 * (ref - data["revenue_mean"]) / ref
     if frame.visits is not None and res is not None and run.solver.tags.gives_bid_prices:
