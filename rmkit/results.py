@@ -22,7 +22,7 @@ from __future__ import annotations
 import json
 import time
 from collections.abc import Mapping
-from dataclasses import dataclass, field
+from dataclasses import InitVar, dataclass, field
 from typing import Any
 
 import numpy as np
@@ -139,8 +139,11 @@ class SolveResult:
     message: str = ""
     payload: Mapping[str, Any] = field(default_factory=dict)
     policy: StatePolicy | None = None
+    #: True when the caller hands its arrays over (keeps no reference to them): they are made
+    #: read-only in place instead of copied. Solvers set it through ``SolveOutput.owned``.
+    owned: InitVar[bool] = False
 
-    def __post_init__(self) -> None:
+    def __post_init__(self, owned: bool) -> None:
         if self.status not in STATUSES:
             raise ValueError(f"status must be one of {STATUSES}, got {self.status!r}")
         sizes = _dim_sizes(self.network, self.period, self.n_periods)
@@ -148,7 +151,7 @@ class SolveResult:
         for name, arr in self.variables.items():
             if name not in SCHEMA:
                 raise ValueError(f"{self.method}: unknown result variable {name!r}")
-            a = np.array(arr, copy=True)
+            a = np.asarray(arr) if owned else np.array(arr, copy=True)
             dims = SCHEMA[name].dims
             if a.ndim != len(dims):
                 raise ValueError(f"{self.method}: {name} needs dims {dims}, got shape {a.shape}")

@@ -31,7 +31,7 @@ from __future__ import annotations
 
 from collections.abc import Callable
 
-from numba import njit, types
+from numba import njit, prange, types
 from numba.extending import overload
 
 #: Relative slack of the bid-price test ``f_j >= sum of bid prices`` (rounding of solver output):
@@ -144,6 +144,10 @@ def flat_state(seats, k, strides):
 
 
 # ---------------------------------------------------------------- the loop
+# The per-path body is written out in both loops below rather than called: numba (0.68)
+# miscompiled a per-path function holding the inlined extension points (the final write of
+# next_period was lost), while the same body inside the loop compiles correctly. The two loops
+# are tested against each other and against their own py_func.
 @njit(cache=True)
 def replay_paths(ctrl, dem, customer, uniform, paths, stop, stop_after_sale, net, book, trace,
                  strides):
@@ -179,13 +183,49 @@ def replay_paths(ctrl, dem, customer, uniform, paths, stop, stop_after_sale, net
         next_period[k] = t
 
 
-#: The same loop without an on-disk cache, for controls or demand kinds defined outside rmkit: a
-#: cached specialization for a type from another module would make the cache index unreadable in
-#: every process that cannot import that module.
+@njit(cache=True, parallel=True)
+def replay_paths_parallel(ctrl, dem, customer, uniform, paths, stop, stop_after_sale, net, book,
+                          trace, strides):
+    """:func:`replay_paths` with the paths split over numba's threads. Each path reads and
+    writes only its own rows, so the numbers equal the one-thread loop's exactly."""
+    seats, revenue, accepted, lost, memo, next_period = book
+    tracing = trace.size > 0
+    choosing = uniform.size > 0
+    for q in prange(paths.size):
+        k = paths[q]
+        t = next_period[k]
+        while t < stop:
+            if tracing:
+                trace[k, t] = flat_state(seats, k, strides)
+            c = customer[k, t]
+            u = uniform[k, t] if choosing else 0.0
+            t += 1
+            if c < 0:
+                continue
+            j = customer_chooses(dem, ctrl, k, t - 1, c, u, seats, memo, net)
+            if j >= 0:
+                sell(k, j, seats, revenue, accepted, net)
+                control_records_sale(ctrl, k, j, memo, net)
+                if stop_after_sale:
+                    break
+            else:
+                lost[k, c] += 1
+        next_period[k] = t
+
+
+#: The same loops without an on-disk cache, for controls or demand kinds defined outside rmkit:
+#: a cached specialization for a type from another module would make the cache index unreadable
+#: in every process that cannot import that module.
 replay_paths_uncached = njit(cache=False)(replay_paths.py_func)
+replay_paths_parallel_uncached = njit(cache=False, parallel=True)(replay_paths_parallel.py_func)
+#: Fewest paths worth waking the thread pool for.
+PARALLEL_MIN_PATHS = 256
 
 
-def loop_for(ctrl, dem):
-    """The replay loop to use for these array types: cached when both types are rmkit's own."""
+def loop_for(ctrl, dem, n_paths: int = 0, threads: int = 1):
+    """The replay loop for these array types: cached when both types are rmkit's own, over
+    threads when there are enough paths and more than one thread is allowed."""
     own = all(type(a).__module__.startswith("rmkit.") for a in (ctrl, dem))
+    if threads > 1 and n_paths >= PARALLEL_MIN_PATHS:
+        return replay_paths_parallel if own else replay_paths_parallel_uncached
     return replay_paths if own else replay_paths_uncached

@@ -15,7 +15,7 @@ from __future__ import annotations
 
 import importlib
 import pkgutil
-from collections.abc import Callable, Mapping
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Any, ClassVar
 
@@ -104,6 +104,27 @@ class Problem:
 
 
 @dataclass
+class ResolveSession:
+    """What a method keeps between the re-solves of one simulated run.
+
+    ``cache`` is the method's own (warm starts); ``counts`` tally what happened (e.g. how many
+    re-solves stopped at their budget) and ``values`` collect figures for the summary line;
+    ``note`` is the line itself when a method sets it directly.
+    """
+
+    cache: dict[str, Any] = field(default_factory=dict)
+    counts: dict[str, int] = field(default_factory=dict)
+    values: dict[str, list[float]] = field(default_factory=dict)
+    note: str = ""
+
+    def count(self, key: str, by: int = 1) -> None:
+        self.counts[key] = self.counts.get(key, 0) + by
+
+    def record(self, key: str, value: float) -> None:
+        self.values.setdefault(key, []).append(float(value))
+
+
+@dataclass
 class SolveOutput:
     """What ``_solve`` returns; :meth:`Solver.solve` packages it into a :class:`SolveResult`."""
 
@@ -112,6 +133,8 @@ class SolveOutput:
     message: str = ""
     payload: dict[str, Any] = field(default_factory=dict)
     policy: StatePolicy | None = None
+    #: The solver keeps no reference to these arrays: the result takes them without a copy.
+    owned: bool = False
 
 
 class Solver:
@@ -186,33 +209,85 @@ class Solver:
     ) -> SolveResult:
         """Solve from ``state`` (default: period 0, full capacity); never mutates its inputs."""
         params = self._checked_params()
+        self._check_problem(network, demand)
+        problem, seed = self._problem(network, demand, state, seed)
+        with Timer() as timer:
+            out = self._solve(problem, params, seed)
+        return self._result(problem, out, params, seed, timer.seconds)
+
+    def resolve(
+        self,
+        network: Network,
+        demand: DemandModel,
+        states: Sequence[BookingState],
+        seeds: Sequence[int | None],
+        session: ResolveSession,
+    ) -> list[SolveResult]:
+        """Re-solve from many booking states of one simulated run (the simulator's re-solves).
+
+        ``session`` lives for one policy's run: a method may keep there what it learnt from
+        earlier solves of the same problem (warm starts) and counts for its one-line summary
+        (:meth:`resolve_summary`). The default solves each state on its own, exactly as
+        :meth:`solve`; methods override :meth:`_resolve` to share work between states.
+        """
+        if type(self)._resolve is Solver._resolve:  # nothing shared: exactly solve, state by state
+            return [self.solve(network, demand, state=state, seed=seed)
+                    for state, seed in zip(states, seeds, strict=True)]
+        params = self._checked_params()
+        self._check_problem(network, demand)
+        problems, used = [], []
+        for state, seed in zip(states, seeds, strict=True):
+            problem, seed = self._problem(network, demand, state, seed)
+            problems.append(problem)
+            used.append(seed)
+        with Timer() as timer:
+            outs = self._resolve(problems, params, used, session)
+        each = timer.seconds / max(len(problems), 1)
+        return [self._result(p, o, params, s, each)
+                for p, o, s in zip(problems, outs, used, strict=True)]
+
+    def resolve_summary(self, session: ResolveSession) -> str:
+        """One line on how the re-solves of a run went ("" when there is nothing to say)."""
+        return session.note
+
+    def _resolve(self, problems: list[Problem], params: dict[str, Any],
+                 seeds: list[int | None], session: ResolveSession) -> list[SolveOutput]:
+        return [self._solve(p, params, s) for p, s in zip(problems, seeds, strict=True)]
+
+    # ------------------------------------------------------------ shared by solve and resolve
+    def _check_problem(self, network: Network, demand: DemandModel) -> None:
         check_compatible(network, demand)
         kind = self.kind_refusal(demand)
         if kind is not None:
             raise InputError(f"{self.name}: cannot run on this problem: {kind}")
-        period, capacity = (state or BookingState()).resolve(network, demand.n_periods)
         reason = self.accepts(network, demand)
         if reason is not None:
             raise self.refusal(f"{self.name}: cannot run on this problem: {reason}")
+
+    def _problem(self, network: Network, demand: DemandModel, state: BookingState | None,
+                 seed: int | None) -> tuple[Problem, int | None]:
+        period, capacity = (state or BookingState()).resolve(network, demand.n_periods)
         if seed is None and self.tags.stochastic:
             seed = 0
-        problem = Problem(network, demand, period, capacity)
-        with Timer() as timer:
-            out = self._solve(problem, params, seed)
+        return Problem(network, demand, period, capacity), seed
+
+    def _result(self, problem: Problem, out: SolveOutput, params: dict[str, Any],
+                seed: int | None, seconds: float) -> SolveResult:
         return SolveResult(
             method=self.name,
-            network=network,
-            n_periods=demand.n_periods,
+            network=problem.network,
+            n_periods=problem.demand.n_periods,
             variables=out.variables,
             status=out.status,
             parameters=params,
             seed=seed,
-            seconds=timer.seconds,
-            period=period,
-            capacity=tuple(int(c) for c in capacity),
+            seconds=seconds,
+            period=problem.period,
+            capacity=tuple(int(c) for c in problem.capacity),
             message=out.message,
             payload=out.payload,
             policy=out.policy,
+            owned=out.owned,
         )
 
     def _solve(self, problem: Problem, params: dict[str, Any], seed: int | None) -> SolveOutput:

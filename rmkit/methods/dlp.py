@@ -44,11 +44,21 @@ def dual_message(choice: str) -> str:
 
 def leg_duals(problem: Problem, dual: str = "highs") -> np.ndarray:
     """DLP leg duals at the problem's state (the displacement prices dpd and lr start from)."""
+    return leg_duals_many([problem], dual)[0]
+
+
+def leg_duals_many(problems: list[Problem], dual: str = "highs") -> np.ndarray:
+    """``(S, L)`` DLP leg duals at many states of one network: one model, each solve cold, so
+    every row equals :func:`leg_duals` of its state."""
     from rmkit.methods.shared.network_lp import NetworkLP
 
-    sol = NetworkLP(problem.network, dual=dual).solve(problem.capacity, problem.demand_to_come)
-    raise_or_warn("dlp", sol.status, sol.message)
-    return np.asarray(sol.bid_price, dtype=np.float64)
+    model = NetworkLP(problems[0].network, dual=dual)
+    out = np.empty((len(problems), problems[0].network.n_legs))
+    for s, problem in enumerate(problems):
+        sol = model.solve(problem.capacity, problem.demand_to_come, cold=True)
+        raise_or_warn("dlp", sol.status, sol.message)
+        out[s] = sol.bid_price
+    return out
 
 
 @register

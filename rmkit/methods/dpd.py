@@ -36,8 +36,8 @@ from typing import Any
 import numpy as np
 
 from rmkit.methods.base import Param, Problem, SolveOutput, Solver, Tags, one_of, positive_int, register
-from rmkit.methods.dlp import leg_duals
-from rmkit.methods.shared.leg_dp import bid_prices_at, leg_tables, network_leg_values, value_at
+from rmkit.methods.dlp import leg_duals_many
+from rmkit.methods.shared.leg_dp import bid_prices_at, leg_tables
 from rmkit.methods.shared.network_lp import DUAL_CHOICES
 from rmkit.model.network import Network
 
@@ -83,29 +83,75 @@ class DPDecomposition(Solver):
     }
 
     def _solve(self, problem: Problem, params: dict[str, Any], seed: int | None) -> SolveOutput:
-        network, x = problem.network, problem.capacity
-        prob = problem.probabilities
-        duals = leg_duals(problem, params["dual"])
+        return self._solve_period([problem], params)[0]
+
+    def _resolve(self, problems, params, seeds, session) -> list[SolveOutput]:
+        """States of the same period share every leg DP whose displaced fares they share: the
+        duals are piecewise constant in the seats left, so a simulator's re-solve round solves
+        far fewer leg DPs than states (the numbers are those of one solve per state)."""
+        out: list[SolveOutput | None] = [None] * len(problems)
+        by_period: dict[int, list[int]] = {}
+        for q, problem in enumerate(problems):
+            by_period.setdefault(problem.period, []).append(q)
+        for members in by_period.values():
+            done = self._solve_period([problems[q] for q in members], params)
+            for q, one in zip(members, done, strict=True):
+                out[q] = one
+        session.count("states", len(problems))
+        return out  # type: ignore[return-value]
+
+    def _solve_period(self, problems: list[Problem], params: dict[str, Any]) -> list[SolveOutput]:
+        """Solve states that start in the same period; each distinct (leg, displaced fares)
+        DP is solved once, in one batched kernel call."""
+        network = problems[0].network
+        prob = problems[0].probabilities
+        x = np.stack([p.capacity for p in problems])  # (S, L)
+        duals = leg_duals_many(problems, params["dual"])  # (S, L)
         for _ in range(params["iterations"]):
-            fares = displaced_fares(network, duals)
-            values = network_leg_values(prob, np.broadcast_to(fares[:, None, :], (network.n_legs,
-                                                                          prob.shape[0],
-                                                                          network.n_products)),
-                                network)
-            legs = np.arange(network.n_legs)
-            last = np.where(x > 0, values[legs, 0, np.maximum(x - 1, 0)], np.nan)
-            duals = np.where(x > 0, value_at(values, x) - last, np.inf)
-        leg_value, table = leg_tables(values)
-        return SolveOutput(
-            variables={
-                "value": np.float64(value_at(values, x).sum()),
-                "leg_value": leg_value,
-                "bid_price_table": table,
-                "bid_price": bid_prices_at(table, x),
-                "net_fare": fares,
-            },
-            message=(
-                "value: sum of the leg values at the state (an approximation, not a bound); "
-                f"{params['iterations']} leg DP pass(es) from the DLP duals ({params['dual']})"
-            ),
-        )
+            fares = np.stack([displaced_fares(network, d) for d in duals])  # (S, L, n)
+            solved, where = _shared_leg_values(prob, fares, network)
+            at = solved[where, 0, :]  # (S, L, cmax+1): each leg's values at the first period
+            here = np.take_along_axis(at, x[:, :, None], axis=2)[:, :, 0]
+            last = np.take_along_axis(at, np.maximum(x - 1, 0)[:, :, None], axis=2)[:, :, 0]
+            duals = np.where(x > 0, here - np.where(x > 0, last, np.nan), np.inf)
+        leg_value, table = leg_tables(solved, legs_last=False)  # (U, T, cmax+1) per solved leg
+        message = ("value: sum of the leg values at the state (an approximation, not a bound); "
+                   f"{params['iterations']} leg DP pass(es) from the DLP duals ({params['dual']})")
+        outs = []
+        for s in range(len(problems)):
+            mine = where[s]
+            table_s = np.ascontiguousarray(table[mine].transpose(1, 2, 0))
+            outs.append(SolveOutput(
+                variables={
+                    "value": np.float64(here[s].sum()),
+                    "leg_value": np.ascontiguousarray(leg_value[mine].transpose(1, 2, 0)),
+                    "bid_price_table": table_s,
+                    "bid_price": bid_prices_at(table_s, x[s]),
+                    "net_fare": fares[s].copy(),
+                },
+                message=message,
+                owned=True,  # every array is this state's own
+            ))
+        return outs
+
+
+def _shared_leg_values(prob: np.ndarray, fares: np.ndarray, network: Network
+                       ) -> tuple[np.ndarray, np.ndarray]:
+    """Leg values of S states' displaced fares ``(S, L, n)`` (constant over the periods), each
+    distinct (leg, fares) pair solved once: ``(solved (U, T+1, cmax+1), where (S, L))`` with
+    state s's leg i at ``solved[where[s, i]]``."""
+    from rmkit.kernels.single_leg import leg_values_batch
+
+    n_states, n_legs, _ = fares.shape
+    rows, caps, where = [], [], np.empty((n_states, n_legs), dtype=np.int64)
+    for i in range(n_legs):
+        unique, inverse = np.unique(fares[:, i, :], axis=0, return_inverse=True)
+        where[:, i] = len(rows) + inverse.ravel()
+        rows.extend(unique)
+        caps.extend([int(network.capacities[i])] * len(unique))
+    virtual = np.ascontiguousarray(np.broadcast_to(
+        np.asarray(rows)[:, None, :], (len(rows), prob.shape[0], network.n_products)))
+    solved = np.empty((len(rows), prob.shape[0] + 1, network.max_capacity + 1))
+    leg_values_batch(np.ascontiguousarray(prob), virtual, np.asarray(caps, dtype=np.int64),
+                     solved)
+    return solved, where

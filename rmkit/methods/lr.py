@@ -96,6 +96,13 @@ PATH_FACTOR = 10.0
 KERNEL_THREADS = 1
 #: Iterations over which the bound's improvement is measured for the ``stall_tol`` rule.
 STALL_WINDOW = 100
+#: A simulator's re-solve (``Solver.resolve``) starts from the run's period-0 split and stops
+#: when the bid prices at its state have settled (RESOLVE_TOL of the highest fare over
+#: RESOLVE_WINDOW iterations) or after RESOLVE_ITERATIONS; see benchmarks/bench_lr_resolves.py
+#: for the revenue this costs against fully converged re-solves.
+RESOLVE_ITERATIONS = 60
+RESOLVE_TOL = 1e-3
+RESOLVE_WINDOW = 5
 
 
 def _step_factor_ok(v: object) -> bool:
@@ -145,10 +152,17 @@ def minimise_bound(
     step_factor: float,
     stall_tol: float,
     warm: bool = False,
+    stable_tol: float = 0.0,
+    stable_window: int = 0,
+    mix: bool = True,
 ) -> LagrangianRun:
     """Minimise the Lagrangian bound over fare splits from ``start`` (see the module docstring).
 
-    ``prob`` ``(T, n)`` covers the periods from the state on; ``start`` is ``(L, T, n)``.
+    ``prob`` ``(T, n)`` covers the periods from the state on; ``start`` is ``(L, T, n)``. With
+    ``stable_window > 0`` the run also stops (status ``optimal_inaccurate``) once the record
+    split's bid prices at the state have moved by at most ``stable_tol`` times the highest fare
+    over the last ``stable_window`` iterations: what a policy re-solved at that state uses has
+    settled, though the bound may still fall a little.
     """
     import numba
 
@@ -156,7 +170,8 @@ def minimise_bound(
     numba.set_num_threads(min(KERNEL_THREADS, threads))
     try:
         return _minimise(network, prob, capacity, start, tol=tol, max_iterations=max_iterations,
-                         step_factor=step_factor, stall_tol=stall_tol, warm=warm)
+                         step_factor=step_factor, stall_tol=stall_tol, warm=warm,
+                         stable_tol=stable_tol, stable_window=stable_window, mix=mix)
     finally:
         numba.set_num_threads(threads)
 
@@ -172,6 +187,9 @@ def _minimise(
     step_factor: float,
     stall_tol: float,
     warm: bool,
+    stable_tol: float = 0.0,
+    stable_window: int = 0,
+    mix: bool = True,
 ) -> LagrangianRun:
     from rmkit.kernels.decomposition import (
         average_and_lower_bound,
@@ -194,9 +212,10 @@ def _minimise(
     buffers = [np.array(start, dtype=np.float64, order="C", copy=True) for _ in range(3)]
     current = best = 0
     values = np.empty((n_legs, n_periods + 1, width))
+    best_values = np.empty_like(values) if not mix else values
     occupancy = np.empty((n_legs, n_periods + 1, width))
     accept = np.empty((n_legs, n_periods, n_products))
-    average = np.zeros_like(accept)
+    average = np.zeros_like(accept) if mix else accept  # without a mix nothing is averaged
     direction = np.zeros_like(accept)
     work = np.empty(2 * max(legs.shape[1], 1))
     leg_index = np.arange(n_legs)
@@ -204,6 +223,11 @@ def _minimise(
     record, lower = math.inf, -math.inf
     bounds: list[float] = []
     gaps: list[float] = []
+    # bid prices at the state of the record split, per iteration (for the stability rule)
+    below = np.maximum(x - 1, 0)
+    seats = x > 0
+    settled: list[np.ndarray] = []
+    scale = stable_tol * float(fares.max(initial=0.0))
     reference = delta = path_bound = math.nan
     path = 0.0
     restart = 0
@@ -215,17 +239,31 @@ def _minimise(
         leg_acceptance_batch(prob, lam, caps, x, values, occupancy, accept)
         if value < record:
             record, best = value, current
+            if not mix:  # the record's own values: no leg pass again at the end
+                np.copyto(best_values, values)
+            if stable_window:
+                settled.append(np.where(seats, values[leg_index, 1, x] - values[leg_index, 1, below],
+                                        0.0))
+        elif stable_window:
+            settled.append(settled[-1])
         if k + 1 == 2 * restart or k == 0:  # restart the policy mix at iterations 1, 2, 4, ...
             restart = k + 1
-        weight = 1.0 / (k + 2 - restart)
-        lower = max(lower, average_and_lower_bound(accept, average, weight, fares, legs))
-        gap = max(record - lower, 0.0) / max(abs(record), 1e-12)
+        if mix:
+            weight = 1.0 / (k + 2 - restart)
+            lower = max(lower, average_and_lower_bound(accept, average, weight, fares, legs))
+        gap = (max(record - lower, 0.0) / max(abs(record), 1e-12) if math.isfinite(lower)
+               else math.nan)  # nothing certified yet (no policy mix: certified at the end)
         bounds.append(record)
         gaps.append(gap)
         if gap <= tol:
             status = "optimal"
             break
         if k >= STALL_WINDOW and bounds[k - STALL_WINDOW] - record < stall_tol * abs(record):
+            status = "optimal_inaccurate"
+            break
+        if (stable_window and k >= stable_window
+                and float(np.abs(settled[k] - settled[k - stable_window]).max(initial=0.0))
+                <= scale):
             status = "optimal_inaccurate"
             break
         norm2 = split_direction(prob, accept, legs, direction)
@@ -242,7 +280,8 @@ def _minimise(
         # Goffin & Kiwiel (1999) path-based target level.
         if k == 0:
             reference = record
-            delta = WARM_LEVEL * abs(record) if warm else LEVEL_FRACTION * (record - lower)
+            delta = (WARM_LEVEL * abs(record) if warm or not math.isfinite(lower)
+                     else LEVEL_FRACTION * (record - lower))
         elif value <= reference - delta / 2:
             reference, path = record, 0.0
         elif path > path_bound:
@@ -256,10 +295,15 @@ def _minimise(
         step_and_project(lam, direction, step_factor * (value - target) / norm2, fares, legs,
                          prob, work, buffers[following])
         current = following
-    leg_values_batch(prob, buffers[best], caps, values)
+    if mix:
+        leg_values_batch(prob, buffers[best], caps, values)
+        best_values = values
+    else:  # the last iterate's policy certifies the gap (weight 1: no mix)
+        lower = max(lower, average_and_lower_bound(accept, accept, 1.0, fares, legs))
+        gaps[-1] = max(record - lower, 0.0) / max(abs(record), 1e-12)
     return LagrangianRun(
         multiplier=buffers[best],
-        values=values.copy(),
+        values=best_values.copy(),
         bound=record,
         lower_bound=lower,
         bound_history=np.array(bounds),
@@ -307,6 +351,11 @@ class LagrangianRelaxation(Solver):
                            "never)", _non_negative_float),
         "step_factor": Param(1.0, "a number in (0, 2) (Polyak step factor)", _step_factor_ok),
         "warm_start": Param(False, "True or False", _bool_ok),
+        "resolve_iterations": Param(RESOLVE_ITERATIONS, "a whole number >= 1 (budget of a "
+                                    "re-solve in a simulation)", positive_int),
+        "resolve_tol": Param(RESOLVE_TOL, "a number >= 0 (a re-solve in a simulation stops when "
+                             "its bid prices at the state move by at most this fraction of the "
+                             "highest fare over 5 iterations; 0: never)", _non_negative_float),
     }
 
     def _solve(self, problem: Problem, params: dict[str, Any], seed: int | None) -> SolveOutput:
@@ -343,7 +392,55 @@ class LagrangianRelaxation(Solver):
             per_demand[key] = run.multiplier
         return per_demand[key]
 
-    def _output(self, problem: Problem, run: LagrangianRun, params: dict[str, Any]) -> SolveOutput:
+    def _resolve(self, problems, params, seeds, session) -> list[SolveOutput]:
+        """Re-solves of a simulated run: each starts from the run's period-0 split restricted to
+        the periods left and stops when its bid prices at the state have settled, or at the
+        re-solve budget; its gap is certified by its last policy. Every bound stays valid; the
+        session counts how each stopped for the one-line summary."""
+        outs = []
+        for problem in problems:
+            full = (problem.period == 0
+                    and np.array_equal(problem.capacity, problem.network.capacities))
+            if full:  # the run's first solve: converged, and the split every re-solve starts from
+                out = self._solve(problem, params, None)
+                session.cache["split"] = np.asarray(out.variables["multiplier"]).transpose(1, 0, 2)
+                outs.append(out)
+                continue
+            network, demand = problem.network, problem.demand
+            split = session.cache.get("split")
+            if split is None:
+                split = self._period_zero_multipliers(network, demand, params)
+                session.cache["split"] = split
+            run = minimise_bound(
+                network, problem.probabilities, problem.capacity, split[:, problem.period :, :],
+                **{**_run_settings(params), "max_iterations": params["resolve_iterations"]},
+                warm=True, stable_tol=params["resolve_tol"], stable_window=RESOLVE_WINDOW,
+                mix=False,
+            )
+            why = ("converged" if run.status == "optimal" else "budget"
+                   if run.status == "iteration_limit" else "settled")
+            session.count(why)
+            session.record("gap", float(run.gap_history[-1]))
+            session.record("iterations", float(run.gap_history.size))
+            outs.append(self._output(problem, run, params, warn=False))
+        return outs
+
+    def resolve_summary(self, session) -> str:
+        done = sum(session.counts.values())
+        if not done:
+            return ""
+        gaps = np.array(session.values.get("gap", [np.nan]))
+        its = np.array(session.values.get("iterations", [np.nan]))
+        return (f"{self.name}: {done} re-solves from the run's period-0 split: "
+                f"{session.counts.get('settled', 0)} stopped when their bid prices settled, "
+                f"{session.counts.get('budget', 0)} at the budget of "
+                f"{self.get_params()['resolve_iterations']} iterations, "
+                f"{session.counts.get('converged', 0)} converged; median "
+                f"{float(np.median(its)):.0f} iterations, median certified gap "
+                f"{float(np.median(gaps)):.2%}")
+
+    def _output(self, problem: Problem, run: LagrangianRun, params: dict[str, Any],
+                warn: bool = True) -> SolveOutput:
         leg_value, table = leg_tables(run.values)
         gap = float(run.gap_history[-1])
         message = (
@@ -352,7 +449,7 @@ class LagrangianRelaxation(Solver):
         )
         if run.status == "optimal_inaccurate":
             message += f"; stopped: the bound improved by < stall_tol in {STALL_WINDOW} iterations"
-        if run.status == "iteration_limit":
+        if run.status == "iteration_limit" and warn:
             warnings.warn(
                 f"lr: stopped at max_iterations={params['max_iterations']} with relative gap "
                 f"{gap:.3g} > tol={params['tol']}; the bound is valid but may not be the "

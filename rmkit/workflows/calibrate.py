@@ -252,8 +252,14 @@ class ScaledPolicy:
         return {**self.inner.parameters, "multiplier": self.multiplier}
 
     def control_at(self, network, demand, period, capacity, seed):
-        result = self.inner.control_at(network, demand, period, capacity, seed)
-        return self.control.scaled(result, self.multiplier)
+        return self.controls_at(network, demand, [(period, capacity)], [seed])[0]
+
+    def controls_at(self, network, demand, states, seeds):
+        results = self.inner.controls_at(network, demand, states, seeds)
+        return [self.control.scaled(r, self.multiplier) for r in results]
+
+    def summary(self) -> str:
+        return self.inner.summary()
 
 
 class _Objective:

@@ -42,9 +42,26 @@ class PolicySource(Protocol):
         self, network: Network, demand: DemandModel, period: int, capacity: np.ndarray, seed: int
     ) -> SolveResult | None: ...
 
+    def controls_at(self, network: Network, demand: DemandModel,
+                    states: list[tuple[int, np.ndarray]], seeds: list[int]
+                    ) -> list[SolveResult | None]: ...
+
+    def summary(self) -> str: ...
+
+
+class _OneByOne:
+    """Sources without batch solves answer ``controls_at`` state by state."""
+
+    def controls_at(self, network, demand, states, seeds):
+        return [self.control_at(network, demand, period, capacity, seed)
+                for (period, capacity), seed in zip(states, seeds, strict=True)]
+
+    def summary(self) -> str:
+        return ""
+
 
 @dataclass
-class NoSolvePolicy:
+class NoSolvePolicy(_OneByOne):
     """A control that needs no result (``needs_result`` is False), e.g. first come, first served."""
 
     control: type[Control]
@@ -70,7 +87,10 @@ class SolverPolicy:
     label: str = ""
 
     def __post_init__(self) -> None:
+        from rmkit.methods.base import ResolveSession
+
         self.label = self.label or self.solver.name
+        self.session = ResolveSession()
         if not self.solver.tags.control:
             raise InputError(
                 f"policy: {self.solver.name!r} is a bound without a booking control; pick a "
@@ -87,12 +107,21 @@ class SolverPolicy:
         return self.solver.get_params()
 
     def control_at(self, network, demand, period, capacity, seed) -> SolveResult:
-        state = BookingState(period=int(period), capacity=tuple(int(v) for v in capacity))
-        return self.solver.solve(network, demand, state=state, seed=seed)
+        return self.controls_at(network, demand, [(period, capacity)], [seed])[0]
+
+    def controls_at(self, network, demand, states, seeds) -> list[SolveResult]:
+        """The method re-solved from every state at once (:meth:`Solver.resolve`), sharing what
+        it keeps between the re-solves of this run."""
+        booking = [BookingState(period=int(t), capacity=tuple(int(v) for v in x))
+                   for t, x in states]
+        return self.solver.resolve(network, demand, booking, seeds, self.session)
+
+    def summary(self) -> str:
+        return self.solver.resolve_summary(self.session)
 
 
 @dataclass
-class FixedPolicy:
+class FixedPolicy(_OneByOne):
     """One precomputed result (solved from period 0), applied for the whole horizon.
 
     ``control`` defaults to the registered method's ``tags.control`` when ``result.method`` is

@@ -96,6 +96,7 @@ class Outcome:
     resolve_periods: list[int] = field(default_factory=list)
     statuses: dict[str, int] = field(default_factory=dict)
     trace: np.ndarray | None = None
+    summary: str = ""
 
 
 @dataclass
@@ -171,13 +172,17 @@ def replay(
     resolve: int = 0,
     resolve_every_sale: bool = False,
     trace: bool = False,
+    threads: int | None = None,
 ) -> Outcome:
     """Run one policy over given customers (the engine behind :func:`simulate`).
 
     With ``trace`` the outcome records the flat grid state (over the network's full capacities)
-    at the start of every period of every path.
+    at the start of every period of every path. ``threads`` caps the threads the replay kernel
+    spreads paths over (default: numba's, one per core); the numbers do not depend on it.
     """
     from rmkit.kernels.replay import loop_for
+
+    n_threads = _threads(threads)
 
     started = time.perf_counter()
     n_paths, n_periods = arrivals.customer.shape
@@ -205,27 +210,33 @@ def replay(
     solved: dict[tuple[int, bytes], Any] = {}
     pending = np.arange(n_paths, dtype=np.int64)
     while pending.size:
-        for period, seats, idx in _groups(book, pending):
-            key = (period, seats.tobytes())
-            if key not in solved:
-                t_solve = time.perf_counter()
-                result = source.control_at(network, demand, period, seats,
-                                           solve_seed(seed, period, seats))
-                solved[key] = control.arrays(result, network, seats)
-                solve_seconds += time.perf_counter() - t_solve
+        groups = _groups(book, pending)
+        todo = [(period, seats) for period, seats, _ in groups
+                if (period, seats.tobytes()) not in solved]
+        if todo:  # the states of a round are solved together, so a method may share work
+            t_solve = time.perf_counter()
+            results = _controls_at(source, network, demand, todo,
+                                   [solve_seed(seed, period, seats) for period, seats in todo])
+            for (period, seats), result in zip(todo, results, strict=True):
+                solved[(period, seats.tobytes())] = control.arrays(result, network, seats)
                 if result is not None:
                     solves += 1
                     statuses[result.status] = statuses.get(result.status, 0) + 1
+            solve_seconds += time.perf_counter() - t_solve
+        for period, seats, idx in groups:
+            key = (period, seats.tobytes())
             arrays = solved[key] if every_sale else solved.pop(key)
             if control.memory:
                 book.room_for_memory(control.memory_width(arrays))
                 book.memo[idx] = 0  # the control's memory restarts with each new control
             nxt = np.searchsorted(points, period, side="right")
             stop = int(points[nxt]) if nxt < points.size else n_periods
-            loop_for(arrays, dem)(arrays, dem, arrivals.customer, arrivals.uniform, idx, stop,
-                                  every_sale, net, book.arrays(), states, strides)
+            loop_for(arrays, dem, idx.size, n_threads)(
+                arrays, dem, arrivals.customer, arrivals.uniform, idx, stop, every_sale, net,
+                book.arrays(), states, strides)
         pending = np.flatnonzero(book.next_period < n_periods)
-    _warn_inexact(source.label, statuses, solves)
+    summary = _summary(source)
+    _warn_inexact(source.label, statuses, solves, summary)
     return Outcome(
         label=source.label,
         control=control.name,
@@ -241,16 +252,40 @@ def replay(
         resolve_periods=[int(p) for p in points],
         statuses=statuses,
         trace=states if trace else None,
+        summary=summary,
     )
 
 
-def _warn_inexact(label: str, statuses: dict[str, int], solves: int) -> None:
+def _threads(threads: int | None) -> int:
+    import numba
+
+    return numba.get_num_threads() if threads is None else max(1, min(int(threads),
+                                                                      numba.get_num_threads()))
+
+
+def _controls_at(source: PolicySource, network: Network, demand: DemandModel,
+                 states: list[tuple[int, np.ndarray]], seeds: list[int]) -> list[Any]:
+    """Results at many states: in one call when the source solves in batches."""
+    batch = getattr(source, "controls_at", None)
+    if batch is not None:
+        return list(batch(network, demand, states, seeds))
+    return [source.control_at(network, demand, period, seats, s)
+            for (period, seats), s in zip(states, seeds, strict=True)]
+
+
+def _summary(source: PolicySource) -> str:
+    fn = getattr(source, "summary", None)
+    return fn() if fn is not None else ""
+
+
+def _warn_inexact(label: str, statuses: dict[str, int], solves: int, summary: str) -> None:
+    """One warning per run (never one per re-solve) when some solves were not optimal."""
     inexact = {s: c for s, c in statuses.items() if s != "optimal"}
     if inexact:
         detail = ", ".join(f"{c} {s!r}" for s, c in sorted(inexact.items()))
         warnings.warn(
             f"{label}: {sum(inexact.values())} of {solves} solves were not optimal ({detail}); "
-            "their controls were simulated as returned",
+            "their controls were simulated as returned" + (f" ({summary})" if summary else ""),
             RuntimeWarning,
             stacklevel=3,
         )
@@ -330,6 +365,7 @@ def _run_attrs(outcome: Outcome, seed: int, paths: int, resolve: int, network: N
         "resolve_every_sale": int(outcome.every_sale),
         "solves": int(outcome.solves),
         "solve_statuses": json.dumps(outcome.statuses, sort_keys=True),
+        "resolve_summary": outcome.summary,
         "parameters": json.dumps(outcome.parameters, sort_keys=True, default=str),
         "network": network.name,
         "seconds": float(outcome.seconds),

@@ -238,15 +238,18 @@ def value_at(values: np.ndarray, capacity: np.ndarray) -> np.ndarray:
     return values[np.arange(values.shape[0]), 0, capacity]
 
 
-def leg_tables(values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """``(leg_value, bid_price_table)``, both ``(T, cmax+1, L)``, from ``(L, T+1, cmax+1)`` values."""
-    leg_value = np.ascontiguousarray(values[:, :-1, :].transpose(1, 2, 0))
+def leg_tables(values: np.ndarray, legs_last: bool = True) -> tuple[np.ndarray, np.ndarray]:
+    """``(leg_value, bid_price_table)``, both ``(T, cmax+1, L)``, from ``(L, T+1, cmax+1)``
+    values; with ``legs_last=False`` both stay ``(L, T, cmax+1)`` (per leg, no transpose)."""
     later = values[:, 1:, :]
-    table = np.empty_like(leg_value)
+    table = np.empty(later.shape)
     with np.errstate(invalid="ignore"):
-        table[:, 1:, :] = (later[:, :, 1:] - later[:, :, :-1]).transpose(1, 2, 0)
-    table[:, 0, :] = np.inf
-    return leg_value, table
+        np.subtract(later[:, :, 1:], later[:, :, :-1], out=table[:, :, 1:])
+    table[:, :, 0] = np.inf
+    if not legs_last:
+        return values[:, :-1, :], table
+    return (np.ascontiguousarray(values[:, :-1, :].transpose(1, 2, 0)),
+            np.ascontiguousarray(table.transpose(1, 2, 0)))
 
 
 def bid_prices_at(table: np.ndarray, capacity: np.ndarray) -> np.ndarray:

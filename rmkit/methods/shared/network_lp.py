@@ -242,10 +242,15 @@ class NetworkLP:
         demand_bound: Sequence[float] | np.ndarray,
         *,
         dual: str | None = None,
+        cold: bool = False,
     ) -> LPSolution:
-        """Solve for one ``(capacity, demand_bound)`` pair, warm-started from the last basis."""
+        """Solve for one ``(capacity, demand_bound)`` pair, warm-started from the last basis, or
+        with ``cold`` from none: the same answer as a freshly built model (a warm start may
+        land on another optimal dual of a degenerate program), without building one."""
         x = self._vector(capacity, self.network.n_legs, "capacity")
         d = self._vector(demand_bound, self.network.n_products, "demand_bound")
+        if cold:
+            self._h.clearSolver()
         return self._solve_one(x, d, self.dual if dual is None else _check_dual(dual), True)
 
     def solve_many(
