@@ -253,7 +253,7 @@ def demand_kinds() -> dict[str, type[DemandModel]]:
 
 
 #: Modules of the demand kinds rmkit ships (each registers itself on import).
-_BUNDLED_KINDS = ("rmkit.model.independent",)
+_BUNDLED_KINDS = ("rmkit.model.independent", "rmkit.model.choice")
 
 
 def load_factor(network: Network, demand: DemandModel) -> float:
