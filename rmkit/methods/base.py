@@ -252,5 +252,10 @@ def get_solver(name: str, **settings: Any) -> Solver:
     """A solver instance by method name; an unknown name lists the valid ones."""
     reg = load_all()
     if name not in reg:
+        from rmkit.methods.independent_view import view_from_name
+
+        view = view_from_name(name, settings)  # "<method>:independent"
+        if view is not None:
+            return view
         raise InputError(f"method: unknown method {name!r}; valid methods: {', '.join(sorted(reg))}")
     return reg[name](**settings)
