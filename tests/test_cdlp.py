@@ -12,25 +12,27 @@ from tests.choice_instances import example_zero, parallel_flights, tiny_choice
 from tests.instances import small_problem
 
 
-def test_parallel_flights_published_value():
+@pytest.mark.parametrize("pricing", ["auto", "mip"])
+def test_parallel_flights_published_value(pricing):
     """Koch (2017), Table 3 (second-hand through an independent reproduction), for the instance
     of Liu & van Ryzin (2008): CDLP at alpha = 0.6, first no-purchase case = 56,884.1."""
     net, dem = parallel_flights(0.6, case=0)
-    res = get_solver("cdlp").solve(net, dem)
+    res = get_solver("cdlp", pricing=pricing).solve(net, dem)
     assert res.value == pytest.approx(56_884.1, abs=0.05)
 
 
-def test_example_zero_published_value_and_duals():
+@pytest.mark.parametrize("pricing", ["auto", "mip"])
+def test_example_zero_published_value_and_duals(pricing):
     """Bront, Mendez-Diaz & Vulcano (2009), p. 774 (second-hand): CDLP = 11,409.09, leg duals
     (0, 1134.55, 500), time dual 107.88 (objective and duals; the optimal sets are not unique)."""
     net, dem = example_zero()
-    res = get_solver("cdlp").solve(net, dem)
+    res = get_solver("cdlp", pricing=pricing).solve(net, dem)
     assert res.value == pytest.approx(11_409.09, abs=0.005)
     np.testing.assert_allclose(res["bid_price"], [0.0, 1134.55, 500.0], atol=0.005)
     assert res.payload["time_dual"][0] == pytest.approx(107.88, abs=0.005)
 
 
-@pytest.mark.parametrize("pricing", ["mip", "enumerate"])
+@pytest.mark.parametrize("pricing", ["auto", "mip", "enumerate"])
 @pytest.mark.parametrize("seed", range(4))
 def test_column_generation_equals_full_enumeration(seed, pricing):
     net, dem = tiny_choice(seed, n_legs=2, max_capacity=3, n_products=5, n_periods=6)

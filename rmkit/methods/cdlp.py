@@ -8,7 +8,7 @@ column generation algorithm for choice-based network revenue management", Operat
 57(3):769-784. The program and its solution are in :mod:`rmkit.methods.shared.cdlp`.
 
 The value is an upper bound on the optimal expected revenue to go (Liu & van Ryzin 2008, Prop. 2),
-when the pricing is exact (``pricing="mip"`` or ``"enumerate"``). ``cdlp`` applies the leg duals
+when the pricing is exact (``pricing="auto"``, ``"mip"`` or ``"enumerate"``). ``cdlp`` applies the leg duals
 as static bid prices (``bid_price`` control: offer j iff its fare covers its legs' duals);
 ``cdlp-sets`` applies the primal, offering each set S for h(S) periods (``cdlp_sets`` control,
 :func:`rmkit.methods.shared.cdlp.schedule`). Both re-solve from the state when the simulator asks.
@@ -69,7 +69,7 @@ class ChoiceDeterministicLP(Solver):
     citation = CITATION
     demand_kinds = ("choice",)
     params = {
-        "pricing": Param("mip", _rule(PRICING_CHOICES), one_of(*PRICING_CHOICES)),
+        "pricing": Param("auto", _rule(PRICING_CHOICES), one_of(*PRICING_CHOICES)),
         "columns": Param("generate", _rule(COLUMN_CHOICES), one_of(*COLUMN_CHOICES)),
         "max_iterations": Param(1000, "a whole number >= 1", positive_int),
     }

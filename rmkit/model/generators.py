@@ -47,7 +47,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable
-from typing import Any
+from typing import Any, NamedTuple
 
 import numpy as np
 
@@ -155,6 +155,65 @@ def _settings_text(settings: dict[str, Any]) -> str:
 
 
 # ------------------------------------------------------------------ hub and spoke
+def hub_spoke_shape(n: int, kappa: float, low: int, high: int, rng: np.random.Generator
+                    ) -> tuple[list[Leg], list[Product], list[tuple[int, int]]]:
+    """Legs, products and ordered location pairs of the hub-and-spoke family (module docstring);
+    draws the cheap fares, the first numbers of ``rng``."""
+    places = [place_id(k) for k in range(n + 1)]
+    legs = [Leg(id=f"{places[k]}-{places[0]}", capacity=0, name=f"{place_name(k)} to {place_name(0)}")
+            for k in range(1, n + 1)]
+    legs += [Leg(id=f"{places[0]}-{places[k]}", capacity=0, name=f"{place_name(0)} to {place_name(k)}")
+             for k in range(1, n + 1)]
+    pairs = [(o, d) for o in range(n + 1) for d in range(n + 1) if o != d]
+    cheap = {}
+    for o, d in pairs:  # one draw per unordered pair, in a fixed order
+        if (d, o) not in cheap:
+            cheap[(o, d)] = float(rng.integers(low, high + 1))
+        else:
+            cheap[(o, d)] = cheap[(d, o)]
+    products = []
+    for o, d in pairs:
+        path = (f"{places[o]}-{places[d]}",) if 0 in (o, d) else (
+            f"{places[o]}-{places[0]}", f"{places[0]}-{places[d]}")
+        for c, fare in ((0, cheap[(o, d)]), (1, kappa * cheap[(o, d)])):
+            products.append(Product(
+                id=f"{places[o]}-{places[d]}-{c}", fare=fare, legs=path,
+                name=f"{place_name(o)} to {place_name(d)} {'cheap' if c == 0 else 'expensive'}",
+                fare_class=str(c), origin=place_name(o), destination=place_name(d),
+            ))
+    return legs, products, pairs
+
+
+class HubSpokeStart(NamedTuple):
+    """Checked settings of a hub-and-spoke generator, its shape, and each pair's arrival rate."""
+
+    settings: tuple[int, float, float, int, float, tuple[int, int], int]
+    rng: np.random.Generator
+    legs: list[Leg]
+    products: list[Product]
+    pairs: list[tuple[int, int]]
+    rates: np.ndarray
+
+
+def hub_spoke_start(owner: str, spokes: Any, alpha: Any, kappa: Any, periods: Any, arrival: Any,
+                    fares: Any, seed: Any) -> HubSpokeStart:
+    """Check the family's settings, draw the cheap fares and the pair weights (in that order):
+    pair (o, d) gets ``arrival * weight / sum of weights`` customers per period."""
+    n = _whole(owner, "spokes", spokes, 1)
+    alpha = _positive(owner, "alpha", alpha)
+    kappa = _positive(owner, "kappa", kappa, 1.0, strict=False)
+    t_count = _whole(owner, "periods", periods, 2)
+    arrival = _positive(owner, "arrival", arrival)
+    if arrival > 1.0:
+        raise param_error(owner, "arrival", "a request probability in (0, 1]", arrival)
+    (low, high), seed, rng = _fares_and_rng(owner, fares, seed)
+    legs, products, pairs = hub_spoke_shape(n, kappa, low, high, rng)
+    weights = rng.random(len(pairs))
+    rates = arrival * weights / weights.sum()
+    return HubSpokeStart((n, alpha, kappa, t_count, arrival, (low, high), seed), rng, legs,
+                         products, pairs, rates)
+
+
 def hub_and_spoke(
     spokes: int,
     *,
@@ -186,29 +245,9 @@ def hub_and_spoke(
         Seed of the numpy PCG64 generator.
     """
     owner = "hub_and_spoke"
-    n = _whole(owner, "spokes", spokes, 1)
-    alpha = _positive(owner, "alpha", alpha)
-    kappa = _positive(owner, "kappa", kappa, 1.0, strict=False)
-    t_count = _whole(owner, "periods", periods, 2)
-    arrival = _positive(owner, "arrival", arrival)
-    if arrival > 1.0:
-        raise param_error(owner, "arrival", "a request probability in (0, 1]", arrival)
-    (low, high), seed, rng = _fares_and_rng(owner, fares, seed)
-
-    places = [place_id(k) for k in range(n + 1)]
-    legs = [Leg(id=f"{places[k]}-{places[0]}", capacity=0, name=f"{place_name(k)} to {place_name(0)}")
-            for k in range(1, n + 1)]
-    legs += [Leg(id=f"{places[0]}-{places[k]}", capacity=0, name=f"{place_name(0)} to {place_name(k)}")
-             for k in range(1, n + 1)]
-    pairs = [(o, d) for o in range(n + 1) for d in range(n + 1) if o != d]
-    cheap = {}
-    for o, d in pairs:  # one draw per unordered pair, in a fixed order
-        if (d, o) not in cheap:
-            cheap[(o, d)] = float(rng.integers(low, high + 1))
-        else:
-            cheap[(o, d)] = cheap[(d, o)]
-    weights = rng.random(len(pairs))
-    rates = arrival * weights / weights.sum()
+    hs = hub_spoke_start(owner, spokes, alpha, kappa, periods, arrival, fares, seed)
+    n, alpha, kappa, t_count, arrival, (low, high), seed = hs.settings
+    rng, legs, products, pairs, rates = hs.rng, hs.legs, hs.products, hs.pairs, hs.rates
     switch = rng.integers(t_count // 2, (2 * t_count) // 3 + 1, size=len(pairs))
 
     t = np.arange(t_count)[:, None]
@@ -218,16 +257,6 @@ def hub_and_spoke(
     p[:, 0::2] = rates[None, :] * (1.0 - dear_share)
     p[:, 1::2] = rates[None, :] * dear_share
 
-    products = []
-    for o, d in pairs:
-        path = (f"{places[o]}-{places[d]}",) if 0 in (o, d) else (
-            f"{places[o]}-{places[0]}", f"{places[0]}-{places[d]}")
-        for c, fare in ((0, cheap[(o, d)]), (1, kappa * cheap[(o, d)])):
-            products.append(Product(
-                id=f"{places[o]}-{places[d]}-{c}", fare=fare, legs=path,
-                name=f"{place_name(o)} to {place_name(d)} {'cheap' if c == 0 else 'expensive'}",
-                fare_class=str(c), origin=place_name(o), destination=place_name(d),
-            ))
     settings = {"spokes": n, "alpha": alpha, "kappa": kappa, "periods": t_count,
                 "arrival": arrival, "fares": [low, high], "seed": seed}
     return _finish(owner, legs, products, p, alpha,
@@ -343,3 +372,10 @@ def generate(family: str, **settings: Any) -> Scenario:
 
         valid = ", ".join(inspect.signature(fn).parameters)
         raise InputError(f"generator {family!r}: {err}; valid settings: {valid}") from None
+
+
+# the choice family reads the helpers above, so it is imported (and registered) last
+from rmkit.model.choice_generators import hub_and_spoke_choice  # noqa: E402
+
+GENERATORS["hub-spoke-choice"] = hub_and_spoke_choice
+SIZE_ARGUMENT["hub-spoke-choice"] = "spokes"

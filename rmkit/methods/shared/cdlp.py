@@ -20,11 +20,15 @@ and the pricing problem is its maximum over S. It is solved
 
 * ``"mip"``: exactly, as the mixed-integer linear program of Bront et al. (2009, sec. 4.1)
   with HiGHS (binary y_j = j offered, x_l = 1 / (v_l0 + sum_k v_lk y_k), z_lj = x_l y_j
-  linearised by McCormick bounds); the greedy heuristic is tried first and the MIP only when
-  the heuristic finds no improving set;
+  linearised by McCormick bounds). The problem separates over components; in each, the greedy
+  set is kept when it reaches the bound ``sum_l lambda_l max_S R_l(S)`` (each segment alone is
+  solved by a revenue-ordered set), which certifies it, and the MIP is solved otherwise;
 * ``"greedy"``: the greedy heuristic of Bront et al. (2009, sec. 4.2) alone (add the product
   that raises the reduced cost most while any does); the value is then not certified;
-* ``"enumerate"``: exactly, by searching every subset of every component (small components).
+* ``"enumerate"``: exactly, by searching every subset of every component (small components);
+* ``"auto"`` (the default): ``"enumerate"`` on components of at most :data:`AUTO_ENUMERATE`
+  products, ``"mip"`` on larger ones; both exact, and enumeration is far cheaper on the small
+  components of most instances (many epochs x iterations of MIPs otherwise).
 
 ``columns="all"`` instead solves the LP over every offer set at once (a check on small cases).
 Products with ``f_j - pi A_j <= 0`` are never in a best set (:mod:`.offer_sets`), so they are
@@ -39,11 +43,13 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from rmkit.methods.shared.network_lp import map_status, quiet_highs
-from rmkit.methods.shared.offer_sets import offer_sets, set_probabilities
-from rmkit.model.choice import ChoiceDemand
+from rmkit.methods.shared.offer_sets import components, set_probabilities
+from rmkit.model.choice import ChoiceDemand, purchase_matrix
 from rmkit.model.network import Network
 
-PRICING_CHOICES = ("mip", "greedy", "enumerate")
+PRICING_CHOICES = ("auto", "mip", "greedy", "enumerate")
+#: ``pricing="auto"`` enumerates the subsets of components up to this size, else uses the MIP.
+AUTO_ENUMERATE = 10
 COLUMN_CHOICES = ("generate", "all")
 #: A set enters the master when its reduced cost exceeds this times (1 + the largest fare).
 REDUCED_COST_TOL = 1e-9
@@ -110,7 +116,7 @@ def _epochs(demand: ChoiceDemand, period: int) -> tuple[np.ndarray, np.ndarray, 
 
 
 def solve_cdlp(network: Network, demand: ChoiceDemand, period: int, capacity: np.ndarray, *,
-               pricing: str = "mip", columns: str = "generate", max_iterations: int = 1000
+               pricing: str = "auto", columns: str = "generate", max_iterations: int = 1000
                ) -> CDLPSolution:
     """CDLP from ``period`` with ``capacity`` seats left (see the module docstring)."""
     rows, lengths, epoch = _epochs(demand, period)
@@ -174,50 +180,75 @@ def solve_cdlp(network: Network, demand: ChoiceDemand, period: int, capacity: np
 
 
 class _Pricer:
-    """The pricing problem of each epoch: ``max_S sum_j P_ej(S) r_j``."""
+    """The pricing problem of each epoch, ``max_S sum_j P_ej(S) r_j``, component by component
+    (the objective separates over components, :mod:`.offer_sets`)."""
 
     def __init__(self, network: Network, demand: ChoiceDemand, rows: np.ndarray, how: str):
         self.demand, self.rows, self.how = demand, rows, how
         self.w, self.v0 = demand.weight_matrix(), demand.no_purchase
         self.n = network.n_products
-        self.tables = offer_sets(demand) if how == "enumerate" else None
-        if self.tables is not None:  # tables per distinct row of the whole horizon
-            all_rows = np.unique(demand.arrival, axis=0)
-            self.row_index = [int(np.flatnonzero((all_rows == r).all(axis=1))[0]) for r in rows]
+        self.groups = [np.array(g) for g in components(demand)]
+        self.segments = [np.flatnonzero(self.w[:, g].sum(axis=1) > 0) for g in self.groups]
+        self._tables: dict[tuple[int, int], np.ndarray] = {}
 
     def gain(self, e: int, offered: np.ndarray, r: np.ndarray) -> float:
         return float(set_probabilities(self.demand, offered[None, :], self.rows[e])[0] @ r)
 
     def best(self, e: int, r: np.ndarray) -> tuple[np.ndarray, float]:
-        if self.how == "enumerate":
-            return self._enumerate(e, r)
-        offered, gain = greedy_set(self.w, self.v0, self.rows[e], r)
-        if self.how == "greedy":
-            return offered, gain
-        return self._mip(e, r, offered, gain)
-
-    def _enumerate(self, e: int, r: np.ndarray) -> tuple[np.ndarray, float]:
-        from rmkit.kernels.offer_sets import best_subset
-
-        t = self.tables
-        assert t is not None
-        row = t.prob[self.row_index[e]]
+        lam = self.rows[e]
         offered = np.zeros(self.n, dtype=bool)
-        for c in range(t.n_components):
-            members = t.comp_product[t.comp_ptr[c]:t.comp_ptr[c + 1]]
-            g = np.maximum(r[members], 0.0)
-            allowed = sum(1 << q for q in range(members.size) if r[members[q]] > 0)
-            if allowed:
-                sub = best_subset(row, t.set_ptr[c], members.size, g, allowed,
-                                  np.zeros(2**members.size))
-                offered[t.subset_bits(c, sub)] = True
+        for c, (g, segs) in enumerate(zip(self.groups, self.segments, strict=True)):
+            if self.how == "enumerate" or (self.how == "auto" and g.size <= AUTO_ENUMERATE):
+                offered[g] = self._enumerate(e, c, r[g])
+                continue
+            rc = np.zeros(self.n)
+            rc[g] = r[g]
+            w, v0, lc = self.w[segs], self.v0[segs], lam[segs]
+            pick, value = greedy_set(w, v0, lc, rc)
+            if self.how != "greedy":
+                bound = sum(lc[q] * single_segment_best(w[q], v0[q], rc) for q in range(segs.size))
+                if bound - value > REDUCED_COST_TOL * (1.0 + abs(bound)):
+                    # the greedy set may not be optimal here: solve the component's MIP
+                    exact = mip_set(w, v0, lc, rc)
+                    if _segment_gain(w, v0, lc, rc, exact) > value:
+                        pick = exact
+            offered |= pick
         return offered, self.gain(e, offered, r)
 
-    def _mip(self, e: int, r: np.ndarray, start: np.ndarray, start_gain: float
-             ) -> tuple[np.ndarray, float]:
-        offered = mip_set(self.w, self.v0, self.rows[e], r)
-        gain = self.gain(e, offered, r)
-        return (offered, gain) if gain > start_gain else (start, start_gain)
+    def _enumerate(self, e: int, c: int, r: np.ndarray) -> np.ndarray:
+        """The best subset of component c among those of its products with r > 0."""
+        key = (e, c)
+        if key not in self._tables:  # (2^nc, nc) sale probabilities of every subset
+            g = self.groups[c]
+            subs = ((np.arange(2**g.size)[:, None] >> np.arange(g.size)[None, :]) & 1) > 0
+            full = np.zeros((subs.shape[0], self.n), dtype=bool)
+            full[:, g] = subs
+            self._tables[key] = set_probabilities(self.demand, full, self.rows[e])[:, g]
+        table = self._tables[key]
+        subs = np.arange(table.shape[0])
+        allowed = int(sum(1 << q for q in range(r.size) if r[q] > 0))
+        value = np.where((subs & ~allowed) == 0, table @ np.maximum(r, 0.0), -np.inf)
+        best = int(np.argmax(value))
+        return ((best >> np.arange(r.size)) & 1) > 0
+
+
+def _segment_gain(w: np.ndarray, v0: np.ndarray, lam: np.ndarray, r: np.ndarray,
+                  offered: np.ndarray) -> float:
+    return float(lam @ purchase_matrix(w, v0, offered) @ r)
+
+
+def single_segment_best(w: np.ndarray, v0: float, r: np.ndarray) -> float:
+    """``max_S sum_j P_j(S) r_j`` for ONE MNL segment: some revenue-ordered set (the products
+    with the k highest r_j) is optimal (Talluri & van Ryzin 2004, sec. 7.2.2), so k runs over
+    the products with r_j > 0. Summed over a component's segments it bounds the component's
+    pricing problem from above, with equality when the segments agree."""
+    cand = np.flatnonzero((w > 0) & (r > 0))
+    if cand.size == 0:
+        return 0.0
+    order = cand[np.argsort(-r[cand], kind="stable")]
+    num = np.cumsum(w[order] * r[order])
+    den = v0 + np.cumsum(w[order])
+    return float((num / den).max())
 
 
 def greedy_set(w: np.ndarray, v0: np.ndarray, lam: np.ndarray, r: np.ndarray
