@@ -124,20 +124,19 @@ def solve_cdlp(network: Network, demand: ChoiceDemand, period: int, capacity: np
     master = _Master(np.asarray(capacity), lengths)
     n = network.n_products
 
-    def add(e: int, offered: np.ndarray) -> None:
-        p = set_probabilities(demand, offered[None, :], rows[e])[0]
-        master.add(e, offered, float(p @ f), a @ p, float(p.sum()))
+    def add(epochs: np.ndarray, offered: np.ndarray) -> None:
+        probs = set_probabilities(demand, offered, rows[epochs])
+        for e, s, p in zip(epochs, offered, probs, strict=True):
+            master.add(int(e), s, float(p @ f), a @ p, float(p.sum()))
 
     if columns == "all":
+        every = np.array(list(itertools.product((False, True), repeat=n))[1:], dtype=bool)
         for e in range(rows.shape[0]):
-            for bits in itertools.product((False, True), repeat=n):
-                if any(bits):
-                    add(e, np.array(bits))
+            add(np.full(every.shape[0], e), every)
         status, detail, value, duals, h = master.solve()
         iterations = 1
     else:
-        for e in range(rows.shape[0]):
-            add(e, np.ones(n, dtype=bool))
+        add(np.arange(rows.shape[0]), np.ones((rows.shape[0], n), dtype=bool))
         pricer = _Pricer(network, demand, rows, pricing)
         tol = REDUCED_COST_TOL * (1.0 + float(f.max(initial=0.0)))
         iterations = 0
@@ -149,13 +148,10 @@ def solve_cdlp(network: Network, demand: ChoiceDemand, period: int, capacity: np
                     status, detail = "iteration_limit", f"{max_iterations} iterations"
                 break
             r = f - duals[: network.n_legs] @ a
-            found = False
-            for e in range(rows.shape[0]):
-                offered, gain = pricer.best(e, r)
-                if gain - duals[network.n_legs + e] > tol:
-                    add(e, offered)
-                    found = True
-            if not found:
+            offered, gains = pricer.best_all(r)
+            better = np.flatnonzero(gains - duals[network.n_legs:] > tol)
+            add(better, offered[better])
+            if better.size == 0:
                 break
     cols = master.columns
     used = np.flatnonzero(h > 1e-12) if status == "optimal" else np.zeros(0, dtype=np.int64)
@@ -180,8 +176,9 @@ def solve_cdlp(network: Network, demand: ChoiceDemand, period: int, capacity: np
 
 
 class _Pricer:
-    """The pricing problem of each epoch, ``max_S sum_j P_ej(S) r_j``, component by component
-    (the objective separates over components, :mod:`.offer_sets`)."""
+    """The pricing problem of every epoch, ``max_S sum_j P_ej(S) r_j``, component by component
+    (the objective separates over components, :mod:`.offer_sets`). Enumerated components are
+    priced for all epochs at once from tables of every subset's sale probabilities."""
 
     def __init__(self, network: Network, demand: ChoiceDemand, rows: np.ndarray, how: str):
         self.demand, self.rows, self.how = demand, rows, how
@@ -189,47 +186,58 @@ class _Pricer:
         self.n = network.n_products
         self.groups = [np.array(g) for g in components(demand)]
         self.segments = [np.flatnonzero(self.w[:, g].sum(axis=1) > 0) for g in self.groups]
-        self._tables: dict[tuple[int, int], np.ndarray] = {}
+        self.tables = [self._table(g, segs) if self._enumerated(g) else None
+                       for g, segs in zip(self.groups, self.segments, strict=True)]
 
-    def gain(self, e: int, offered: np.ndarray, r: np.ndarray) -> float:
-        return float(set_probabilities(self.demand, offered[None, :], self.rows[e])[0] @ r)
+    def _enumerated(self, g: np.ndarray) -> bool:
+        return self.how == "enumerate" or (self.how == "auto" and g.size <= AUTO_ENUMERATE)
 
-    def best(self, e: int, r: np.ndarray) -> tuple[np.ndarray, float]:
-        lam = self.rows[e]
-        offered = np.zeros(self.n, dtype=bool)
-        for c, (g, segs) in enumerate(zip(self.groups, self.segments, strict=True)):
-            if self.how == "enumerate" or (self.how == "auto" and g.size <= AUTO_ENUMERATE):
-                offered[g] = self._enumerate(e, c, r[g])
+    def _table(self, g: np.ndarray, segs: np.ndarray) -> np.ndarray:
+        """``(E, 2**n_c, n_c)``: sale probability per period of each product of the component
+        for every subset (bits over the component's products) in every epoch."""
+        subs = ((np.arange(2**g.size)[:, None] >> np.arange(g.size)[None, :]) & 1) > 0
+        out = np.zeros((self.rows.shape[0],) + subs.shape)
+        for l in segs:
+            share = purchase_matrix(self.w[l][g][None, :] * subs, np.full(subs.shape[0],
+                                                                         self.v0[l]), None)
+            out += self.rows[:, l][:, None, None] * share[None, :, :]
+        return out
+
+    def best_all(self, r: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """``(offered (E, n), gain (E,))``: the best set of every epoch and what it earns."""
+        n_epochs = self.rows.shape[0]
+        offered = np.zeros((n_epochs, self.n), dtype=bool)
+        for g, segs, table in zip(self.groups, self.segments, self.tables, strict=True):
+            if table is not None:
+                offered[:, g] = _best_subsets(table, r[g])
                 continue
             rc = np.zeros(self.n)
             rc[g] = r[g]
-            w, v0, lc = self.w[segs], self.v0[segs], lam[segs]
-            pick, value = greedy_set(w, v0, lc, rc)
-            if self.how != "greedy":
-                bound = sum(lc[q] * single_segment_best(w[q], v0[q], rc) for q in range(segs.size))
-                if bound - value > REDUCED_COST_TOL * (1.0 + abs(bound)):
-                    # the greedy set may not be optimal here: solve the component's MIP
-                    exact = mip_set(w, v0, lc, rc)
-                    if _segment_gain(w, v0, lc, rc, exact) > value:
-                        pick = exact
-            offered |= pick
-        return offered, self.gain(e, offered, r)
+            for e in range(n_epochs):
+                offered[e] |= self._search(self.rows[e][segs], self.w[segs], self.v0[segs], rc)
+        return offered, set_probabilities(self.demand, offered, self.rows) @ r
 
-    def _enumerate(self, e: int, c: int, r: np.ndarray) -> np.ndarray:
-        """The best subset of component c among those of its products with r > 0."""
-        key = (e, c)
-        if key not in self._tables:  # (2^nc, nc) sale probabilities of every subset
-            g = self.groups[c]
-            subs = ((np.arange(2**g.size)[:, None] >> np.arange(g.size)[None, :]) & 1) > 0
-            full = np.zeros((subs.shape[0], self.n), dtype=bool)
-            full[:, g] = subs
-            self._tables[key] = set_probabilities(self.demand, full, self.rows[e])[:, g]
-        table = self._tables[key]
-        subs = np.arange(table.shape[0])
-        allowed = int(sum(1 << q for q in range(r.size) if r[q] > 0))
-        value = np.where((subs & ~allowed) == 0, table @ np.maximum(r, 0.0), -np.inf)
-        best = int(np.argmax(value))
-        return ((best >> np.arange(r.size)) & 1) > 0
+    def _search(self, lam: np.ndarray, w: np.ndarray, v0: np.ndarray, r: np.ndarray
+                ) -> np.ndarray:
+        pick, value = greedy_set(w, v0, lam, r)
+        if self.how != "greedy":
+            bound = sum(lam[q] * single_segment_best(w[q], v0[q], r) for q in range(lam.size))
+            if bound - value > REDUCED_COST_TOL * (1.0 + abs(bound)):
+                # the greedy set may not be optimal here: solve the component's MIP
+                exact = mip_set(w, v0, lam, r)
+                if _segment_gain(w, v0, lam, r, exact) > value:
+                    pick = exact
+        return pick
+
+
+def _best_subsets(table: np.ndarray, r: np.ndarray) -> np.ndarray:
+    """``(E, n_c)``: per epoch, the subset of the products with r > 0 earning most (ties: the
+    first in ascending order of subset bits)."""
+    subs = np.arange(table.shape[1])
+    allowed = int(sum(1 << q for q in range(r.size) if r[q] > 0))
+    value = np.where(((subs & ~allowed) == 0)[None, :], table @ np.maximum(r, 0.0), -np.inf)
+    best = np.argmax(value, axis=1)
+    return ((best[:, None] >> np.arange(r.size)[None, :]) & 1) > 0
 
 
 def _segment_gain(w: np.ndarray, v0: np.ndarray, lam: np.ndarray, r: np.ndarray,

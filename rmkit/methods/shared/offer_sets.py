@@ -153,13 +153,15 @@ def _subset_shares(w_l: np.ndarray, v0_l: float, offered_rows: np.ndarray) -> np
                            None)
 
 
-def set_probabilities(demand: ChoiceDemand, sets: np.ndarray, arrival_row: np.ndarray
+def set_probabilities(demand: ChoiceDemand, sets: np.ndarray, arrival: np.ndarray
                       ) -> np.ndarray:
-    """``(K, n)``: sale probability per period of each product for K offered sets (bool rows)
-    with the segments' arrival probabilities ``arrival_row``."""
+    """``(K, n)``: sale probability per period of each product for K offered sets (bool rows),
+    set k facing the segments' arrival probabilities ``arrival[k]`` (or one ``(L,)`` row for
+    all)."""
     w, v0 = demand.weight_matrix(), demand.no_purchase
-    out = np.zeros((sets.shape[0], demand.n_products))
-    for l in range(demand.n_segments):
-        if arrival_row[l] > 0:
-            out += arrival_row[l] * _subset_shares(w[l], v0[l], sets)
-    return out
+    offered = np.asarray(sets, dtype=bool)
+    ws = w[None, :, :] * offered[:, None, :]  # (K, L, n)
+    denom = v0[None, :] + ws.sum(axis=2)
+    share = ws / np.where(denom > 0, denom, 1.0)[:, :, None]
+    lam = np.broadcast_to(np.asarray(arrival, dtype=np.float64), (offered.shape[0], w.shape[0]))
+    return np.einsum("kl,kln->kn", lam, share)
