@@ -89,3 +89,43 @@ def test_kernel_equals_its_python_function():
             setattr(m, n, fn)
     np.testing.assert_array_equal(compiled.values, plain.values)
     np.testing.assert_array_equal(compiled.decision_bits, plain.decision_bits)
+
+
+def test_choice_leg_dp_is_the_independent_leg_dp_for_one_segment_per_product():
+    """The leg DPs of cdpd (Liu & van Ryzin 2008, sec. 4) under independent demand written as
+    choice: the same bid-price tables as the independent leg DPs of dpd with the same duals."""
+    from rmkit.methods.dpd import displaced_fares
+    from rmkit.methods.shared.leg_dp import leg_tables, leg_values
+
+    net, ind = small_problem()
+    ch = ChoiceDemand.independent_equivalent(ind.probabilities)
+    res = get_solver("cdpd").solve(net, ch)
+    fares = displaced_fares(net, res.payload["cdlp_duals"])
+    prob = ind.probabilities
+    values = leg_values(prob, np.broadcast_to(fares[:, None, :], (net.n_legs,) + prob.shape), net)
+    _, table = leg_tables(values)
+    np.testing.assert_allclose(res["bid_price_table"], table, rtol=1e-12, atol=1e-9)
+
+
+def test_leg_kernel_equals_its_python_function():
+    from rmkit.kernels import choice_dp, offer_sets
+    from rmkit.methods.shared.offer_sets import offer_sets as tabulate
+
+    net, dem = tiny_choice(3, n_legs=2, max_capacity=3, n_products=5)
+    sets = tabulate(dem)
+    args = (*sets.arrays(), net.fares - 10.0, net.incidence[0].astype(np.uint8),
+            int(net.capacities[0]))
+    shape = (dem.n_periods + 1, int(net.capacities[0]) + 1)
+    compiled, plain = np.zeros(shape), np.zeros(shape)
+    choice_dp.choice_leg_values(*args, compiled)
+    swapped = [(m, n, getattr(m, n)) for m, n in ((choice_dp, "add_best"), (choice_dp, "scratch"),
+                                                  (offer_sets, "best_subset"))]
+    try:
+        for m, n, fn in swapped:
+            setattr(m, n, fn.py_func)
+        choice_dp.choice_leg_values.py_func(*args, plain)
+    finally:
+        for m, n, fn in swapped:
+            setattr(m, n, fn)
+    np.testing.assert_array_equal(compiled, plain)
+    assert compiled[0, -1] > 0
