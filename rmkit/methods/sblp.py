@@ -27,7 +27,8 @@ from typing import Any
 import numpy as np
 
 from rmkit.methods.base import Problem, SolveOutput, Solver, Tags, register
-from rmkit.methods.shared.network_lp import map_status, quiet_highs, raise_or_warn
+from rmkit.methods.shared.highs_rows import solve_rows
+from rmkit.methods.shared.network_lp import raise_or_warn
 
 
 @register
@@ -73,29 +74,13 @@ class SalesBasedLP(Solver):
                 other.append(([x0, *cols], [1.0] * (len(cols) + 1), mass[e, l], mass[e, l]))
         all_rows = [([k for k, _ in r], [v for _, v in r], -highspy.kHighsInf,
                      float(problem.capacity[i])) for i, r in enumerate(cap_rows)] + other
-        lp = highspy.HighsLp()
-        lp.num_col_, lp.num_row_ = len(cost), len(all_rows)
-        lp.col_cost_ = np.array(cost)
-        lp.col_lower_ = np.zeros(len(cost))
-        lp.col_upper_ = np.full(len(cost), highspy.kHighsInf)
-        lp.row_lower_ = np.array([r[2] for r in all_rows], dtype=np.float64)
-        lp.row_upper_ = np.array([r[3] for r in all_rows], dtype=np.float64)
-        lp.sense_ = highspy.ObjSense.kMaximize
-        lp.a_matrix_.format_ = highspy.MatrixFormat.kRowwise
-        lp.a_matrix_.start_ = np.concatenate(
-            [[0], np.cumsum([len(r[0]) for r in all_rows])]).astype(np.int32)
-        lp.a_matrix_.index_ = np.array([k for r in all_rows for k in r[0]], dtype=np.int32)
-        lp.a_matrix_.value_ = np.array([v for r in all_rows for v in r[1]], dtype=np.float64)
-        h = quiet_highs()
-        h.passModel(lp)
-        h.run()
-        status = map_status(h.getModelStatus())
-        message = "" if status == "optimal" else (
-            f"SBLP {status} ({h.modelStatusToString(h.getModelStatus())})")
+        n_cols = len(cost)
+        sol = solve_rows(cost, [0.0] * n_cols, [highspy.kHighsInf] * n_cols, all_rows)
+        status = sol.status
+        message = "" if status == "optimal" else f"SBLP {status} ({sol.detail})"
         raise_or_warn(self.name, status, message)
-        sol = h.getSolution()
         ok = status == "optimal"
-        value = float(h.getInfoValue("objective_function_value")[1]) if ok else float("nan")
-        duals = np.maximum(np.array(sol.row_dual[:m]), 0.0) if ok else np.full(m, np.nan)
+        value = sol.value if ok else float("nan")
+        duals = np.maximum(sol.row_duals[:m], 0.0) if ok else np.full(m, np.nan)
         return SolveOutput(variables={"value": np.float64(value), "bid_price": duals},
                            status=status, message=message)

@@ -42,6 +42,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from rmkit.methods.shared.highs_rows import Row, solve_rows
 from rmkit.methods.shared.network_lp import map_status, quiet_highs
 from rmkit.methods.shared.offer_sets import components, set_probabilities
 from rmkit.model.choice import ChoiceDemand, purchase_matrix
@@ -307,7 +308,7 @@ def mip_set(w: np.ndarray, v0: np.ndarray, lam: np.ndarray, r: np.ndarray) -> np
         return out
     inf = highspy.kHighsInf
     cost, lower, upper, integer = [], [], [], []
-    rows: list[tuple[list[int], list[float], float, float]] = []
+    rows: list[Row] = []
 
     def var(c: float, lo: float, hi: float, is_int: bool) -> int:
         cost.append(c)
@@ -339,26 +340,7 @@ def mip_set(w: np.ndarray, v0: np.ndarray, lam: np.ndarray, r: np.ndarray) -> np
             rows.append(([z, y[j]], [1.0, -u], -inf, 0.0))
             rows.append(([x, z, y[j]], [1.0, -1.0, u], -inf, u))
         rows.append((idx, val, rhs, rhs))
-    lp = highspy.HighsLp()
-    lp.num_col_, lp.num_row_ = len(cost), len(rows)
-    lp.col_cost_ = np.array(cost)
-    lp.col_lower_, lp.col_upper_ = np.array(lower), np.array(upper)
-    lp.row_lower_ = np.array([rw[2] for rw in rows])
-    lp.row_upper_ = np.array([rw[3] for rw in rows])
-    lp.sense_ = highspy.ObjSense.kMaximize
-    lp.a_matrix_.format_ = highspy.MatrixFormat.kRowwise
-    lp.a_matrix_.start_ = np.concatenate([[0], np.cumsum([len(rw[0]) for rw in rows])]).astype(
-        np.int32)
-    lp.a_matrix_.index_ = np.array([i for rw in rows for i in rw[0]], dtype=np.int32)
-    lp.a_matrix_.value_ = np.array([v for rw in rows for v in rw[1]], dtype=np.float64)
-    lp.integrality_ = [highspy.HighsVarType.kInteger if b else highspy.HighsVarType.kContinuous
-                       for b in integer]
-    h = quiet_highs()
-    h.setOptionValue("mip_rel_gap", 1e-9)
-    h.setOptionValue("mip_abs_gap", 1e-9)
-    h.passModel(lp)
-    h.run()
-    values = np.array(h.getSolution().col_value)
+    values = solve_rows(cost, lower, upper, rows, integer=integer, gap=1e-9).columns
     for j, k in y.items():
         out[j] = values[k] > 0.5
     return out
