@@ -68,6 +68,19 @@ def tiny_choice(seed: int, n_legs: int = 2, max_capacity: int = 2, n_products: i
     return net, ChoiceDemand(lam, sets, weights, [1.0, 0.0, 2.5], n_products)
 
 
+def disjoint_choice(seed: int) -> tuple[Network, ChoiceDemand]:
+    """A random network whose segments consider disjoint products (one with v_0 = 0)."""
+    rng = np.random.default_rng(seed)
+    net = Network.build([("A", 4), ("B", 3)],
+                        [(f"p{j}", float(rng.integers(50, 300)), legs) for j, legs in
+                         enumerate([["A"], ["A"], ["B"], ["A", "B"], ["B"], ["A", "B"]])])
+    sets = [[0, 1], [2, 3], [4, 5]]
+    weights = [rng.uniform(0.5, 5, 2).tolist() for _ in sets]
+    lam = np.tile(rng.uniform(0.1, 0.3, 3), (20, 1))
+    lam[10:] *= 0.5  # two epochs
+    return net, ChoiceDemand(lam, sets, weights, [1.0, 0.0, 2.0], 6)
+
+
 def brute_force_choice_values(network: Network, demand: ChoiceDemand) -> dict:
     """V_t(x) for every period and state by plain backward induction over dicts, enumerating every
     offer set of feasible products and computing MNL probabilities from scratch (written

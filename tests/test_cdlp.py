@@ -8,7 +8,7 @@ import pytest
 from rmkit import InputError, get_solver
 from rmkit.methods.shared.cdlp import greedy_set, mip_set, schedule, solve_cdlp
 from rmkit.model.choice import ChoiceDemand, purchase_matrix
-from tests.choice_instances import example_zero, parallel_flights, tiny_choice
+from tests.choice_instances import disjoint_choice, example_zero, parallel_flights, tiny_choice
 from tests.instances import small_problem
 
 
@@ -93,26 +93,11 @@ def test_refuses_independent_demand_with_one_line():
         get_solver("cdlp").solve(net, ind)
 
 
-def _disjoint_choice(seed: int):
-    """A random network whose segments consider disjoint products (one with v_0 = 0)."""
-    from rmkit import Network
-
-    rng = np.random.default_rng(seed)
-    net = Network.build([("A", 4), ("B", 3)],
-                        [(f"p{j}", float(rng.integers(50, 300)), legs) for j, legs in
-                         enumerate([["A"], ["A"], ["B"], ["A", "B"], ["B"], ["A", "B"]])])
-    sets = [[0, 1], [2, 3], [4, 5]]
-    weights = [rng.uniform(0.5, 5, 2).tolist() for _ in sets]
-    lam = np.tile(rng.uniform(0.1, 0.3, 3), (20, 1))
-    lam[10:] *= 0.5  # two epochs
-    return net, ChoiceDemand(lam, sets, weights, [1.0, 0.0, 2.0], 6)
-
-
 @pytest.mark.parametrize("seed", range(4))
 def test_sblp_equals_cdlp_without_overlap(seed):
     """Gallego, Ratliff & Shebalov (2015), Theorem 1: with non-overlapping consideration sets
     SBLP and CDLP have the same optimum."""
-    net, dem = _disjoint_choice(seed)
+    net, dem = disjoint_choice(seed)
     assert get_solver("sblp").solve(net, dem).value == pytest.approx(
         get_solver("cdlp").solve(net, dem).value, rel=1e-9)
 

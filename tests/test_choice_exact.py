@@ -11,8 +11,24 @@ from rmkit import BookingState, ProblemTooLargeError, get_solver
 from rmkit.methods.shared.choice_dp import feasible_masks, solve_choice_dp
 from rmkit.methods.shared.network_dp import grid_states
 from rmkit.model.choice import ChoiceDemand
-from tests.choice_instances import brute_force_choice_values, parallel_flights, tiny_choice
+from tests.choice_instances import (
+    brute_force_choice_values,
+    disjoint_choice,
+    parallel_flights,
+    tiny_choice,
+)
 from tests.instances import small_problem
+
+
+@pytest.mark.parametrize("seed", range(3))
+def test_equals_brute_force_with_disjoint_segments(seed):
+    """Segments with disjoint consideration sets (one per component, v_0 = 0 for one of them):
+    the values equal the brute force."""
+    net, dem = disjoint_choice(seed)
+    values = brute_force_choice_values(net, dem)
+    dp = solve_choice_dp(net, dem)
+    for x, v in values[0].items():
+        assert dp.value_at(list(x)) == pytest.approx(v, rel=1e-12, abs=1e-9)
 
 
 @pytest.mark.parametrize("seed", range(6))

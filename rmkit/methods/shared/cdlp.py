@@ -214,6 +214,9 @@ class _Pricer:
                 continue
             rc = np.zeros(self.n)
             rc[g] = r[g]
+            if segs.size == 1:  # one segment: a revenue-ordered set is best, whatever the epoch
+                offered[:, revenue_ordered(self.w[segs[0]], self.v0[segs[0]], rc)] = True
+                continue
             for e in range(n_epochs):
                 offered[e] |= self._search(self.rows[e][segs], self.w[segs], self.v0[segs], rc)
         return offered, set_probabilities(self.demand, offered, self.rows) @ r
@@ -246,18 +249,26 @@ def _segment_gain(w: np.ndarray, v0: np.ndarray, lam: np.ndarray, r: np.ndarray,
     return float(lam @ purchase_matrix(w, v0, offered) @ r)
 
 
+def _nested(w: np.ndarray, v0: float, r: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """One segment's products with r > 0 by r descending, and what each nested set earns."""
+    cand = np.flatnonzero((w > 0) & (r > 0))
+    order = cand[np.argsort(-r[cand], kind="stable")]
+    return order, np.cumsum(w[order] * r[order]) / (v0 + np.cumsum(w[order]))
+
+
 def single_segment_best(w: np.ndarray, v0: float, r: np.ndarray) -> float:
     """``max_S sum_j P_j(S) r_j`` for ONE MNL segment: some revenue-ordered set (the products
     with the k highest r_j) is optimal (Talluri & van Ryzin 2004, sec. 7.2.2), so k runs over
     the products with r_j > 0. Summed over a component's segments it bounds the component's
     pricing problem from above, with equality when the segments agree."""
-    cand = np.flatnonzero((w > 0) & (r > 0))
-    if cand.size == 0:
-        return 0.0
-    order = cand[np.argsort(-r[cand], kind="stable")]
-    num = np.cumsum(w[order] * r[order])
-    den = v0 + np.cumsum(w[order])
-    return float((num / den).max())
+    _, earn = _nested(w, v0, r)
+    return float(earn.max(initial=0.0))
+
+
+def revenue_ordered(w: np.ndarray, v0: float, r: np.ndarray) -> np.ndarray:
+    """The products of ONE segment's best set (the revenue-ordered set attaining the max)."""
+    order, earn = _nested(w, v0, r)
+    return order[: int(np.argmax(earn)) + 1] if earn.size else order
 
 
 def greedy_set(w: np.ndarray, v0: np.ndarray, lam: np.ndarray, r: np.ndarray
