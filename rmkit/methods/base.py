@@ -161,8 +161,12 @@ class Solver:
         """``None`` when the method solves ``demand``'s kind, else the one-line reason."""
         if demand.kind in self.demand_kinds:
             return None
-        return (f"{self.name} solves {' or '.join(self.demand_kinds)} demand, not "
-                f"{demand.kind!r} demand")
+        reason = (f"{self.name} solves {' or '.join(self.demand_kinds)} demand, not "
+                  f"{demand.kind!r} demand")
+        if "independent" in self.demand_kinds:  # the view of rmkit.methods.independent_view
+            reason += (f"; '{self.name}:independent' runs it on an independent-demand "
+                       "approximation")
+        return reason
 
     def refusal_reason(self, network: Network, demand: DemandModel) -> str | None:
         """Why the method cannot run on this problem (its demand kind first), else ``None``."""
