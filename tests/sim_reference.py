@@ -217,6 +217,7 @@ def interpreted_kernels():
     import sys
 
     import rmkit.controls
+    import rmkit.kernels.choice_demand  # noqa: F401
     import rmkit.kernels.independent_demand  # noqa: F401
     import rmkit.kernels.replay
 

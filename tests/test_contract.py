@@ -1,5 +1,6 @@
 """The shared solver contract: every registered method passes these checks automatically, on
-every registered demand kind it accepts, and refuses the others with a one-line reason."""
+every demand kind it solves (each kind's ``random_example`` on the small network), and refuses
+the kinds it does not solve with a one-line reason."""
 
 from __future__ import annotations
 
@@ -13,79 +14,57 @@ import numpy as np
 import pytest
 import xarray as xr
 
-from rmkit import SCHEMA, STATUSES, BookingState, InputError, load_all
+from rmkit import SCHEMA, STATUSES, BookingState, InputError, load_all, schema
+from rmkit.model.choice import ChoiceDemand
 from rmkit.model.demand import demand_kinds
+from tests.choice_instances import brute_force_choice_values
 from tests.instances import brute_force_values, one_seat_problem, small_problem
 
 REGISTRY = load_all()
 KINDS = demand_kinds()
+#: The one-seat problem written in each kind (its optimum is 3.0 in all of them).
+ONE_SEAT = {
+    "independent": lambda dem: dem,
+    "choice": lambda dem: ChoiceDemand.independent_equivalent(dem.probabilities),
+}
+#: Brute-force optima by kind (code in tests/, independent of rmkit's kernels).
+BRUTE_FORCE = {"independent": brute_force_values, "choice": brute_force_choice_values}
+_PROBLEMS: dict = {}
+
+
+def problem_of(kind: str):
+    """The small network with demand of ``kind`` (independent: the fixture; others: the kind's
+    ``random_example`` on the same network), and its brute-force optimum (cached)."""
+    if kind not in _PROBLEMS:
+        net, dem = small_problem()
+        if kind != "independent":
+            dem = KINDS[kind].random_example(net, dem.n_periods, 7)
+        c = tuple(int(v) for v in net.capacities)
+        _PROBLEMS[kind] = (net, dem, BRUTE_FORCE[kind](net, dem)[0][c])
+    return _PROBLEMS[kind]
+
+
+CASES = [(name, kind) for name in sorted(REGISTRY) for kind in sorted(KINDS)
+         if kind in REGISTRY[name].demand_kinds]
+REFUSED = [(name, kind) for name in sorted(REGISTRY) for kind in sorted(KINDS)
+           if kind not in REGISTRY[name].demand_kinds]
+
+
+def kind_problem(kind: str):
+    """(network, demand) of :func:`problem_of`, for the other contract suites."""
+    return problem_of(kind)[:2]
+
+
+@pytest.fixture(params=CASES, ids=[f"{n}-{k}" for n, k in CASES])
+def case(request):
+    name, kind = request.param
+    net, dem, optimum = problem_of(kind)
+    return REGISTRY[name](), net, dem, optimum
 
 
 @pytest.fixture(params=sorted(REGISTRY))
 def solver(request):
     return REGISTRY[request.param]()
-
-
-def kind_problem(kind: str):
-    """The small network with a demand model of ``kind`` (its own random example; for
-    independent demand the fixture every other test of this file uses)."""
-    if kind == "independent":
-        return small_problem()
-    net, _ = small_problem()
-    return net, KINDS[kind].random_example(net, 12, seed=7)
-
-
-CASES = [(name, kind) for name in sorted(REGISTRY) for kind in sorted(KINDS)]
-ACCEPTED = [c for c in CASES if c[1] in REGISTRY[c[0]].demand_kinds]
-REFUSED = [c for c in CASES if c[1] not in REGISTRY[c[0]].demand_kinds]
-
-
-def _ids(cases):
-    return [f"{name}-{kind}" for name, kind in cases]
-
-
-@pytest.fixture(params=ACCEPTED, ids=_ids(ACCEPTED))
-def accepted(request):
-    """(solver, network, demand) for every method on every demand kind it accepts."""
-    name, kind = request.param
-    solver = REGISTRY[name]()
-    net, dem = kind_problem(kind)
-    if solver.refusal_reason(net, dem) is not None:
-        pytest.skip(solver.refusal_reason(net, dem))
-    return solver, net, dem
-
-
-def test_every_method_declares_registered_demand_kinds(solver):
-    assert solver.demand_kinds and set(solver.demand_kinds) <= set(KINDS)
-
-
-@pytest.mark.parametrize(("name", "kind"), REFUSED or [pytest.param("", "", marks=pytest.mark.skip(
-    reason="every method accepts every registered demand kind"))], ids=_ids(REFUSED) or None)
-def test_a_demand_kind_it_does_not_solve_is_refused_in_one_line(name, kind):
-    solver = REGISTRY[name]()
-    net, dem = kind_problem(kind)
-    reason = solver.refusal_reason(net, dem)
-    assert reason and "\n" not in reason and kind in reason
-    with pytest.raises(InputError, match=f"{name}: cannot run on this problem: .*{kind}") as err:
-        solver.solve(net, dem)
-    assert "\n" not in str(err.value)
-
-
-def test_runs_on_every_kind_it_accepts(accepted):
-    """Deterministic, non-mutating, schema-true Dataset with provenance, on every kind."""
-    from rmkit import schema
-
-    solver, net, dem = accepted
-    before = _snapshot(net, dem)
-    first = solver.solve(net, dem, seed=1).to_dataset()
-    second = solver.solve(net, dem, seed=1).to_dataset()
-    xr.testing.assert_identical(_comparable(first), _comparable(second))
-    for a, b in zip(before, _snapshot(net, dem), strict=True):
-        np.testing.assert_array_equal(a, b)
-    assert schema.check(first) == []
-    assert first.attrs["method"] == solver.name and "value" in first
-    mid = solver.solve(net, dem, state=BookingState(period=dem.n_periods // 2), seed=1)
-    assert mid.period == dem.n_periods // 2
 
 
 def _comparable(ds: xr.Dataset) -> xr.Dataset:
@@ -115,9 +94,12 @@ def test_cites_its_paper(solver):
     assert any(y in doc for y in years), "the docstring cites the paper"
 
 
-def test_known_optimum_or_bound(solver):
-    """1 seat, 1 period, fare 10, request chance 0.3: the optimum is 3.0 (by hand)."""
+def test_known_optimum_or_bound(case):
+    """1 seat, 1 period, fare 10, request chance 0.3: the optimum is 3.0 (by hand), written in
+    the demand kind of the case."""
+    solver, _, kind_demand, _ = case
     net, dem = one_seat_problem()
+    dem = ONE_SEAT[kind_demand.kind](dem)
     if solver.accepts(net, dem) is not None:
         pytest.skip(solver.accepts(net, dem))
     res = solver.solve(net, dem, seed=0)
@@ -128,11 +110,10 @@ def test_known_optimum_or_bound(solver):
         assert res.value >= 3.0 - 1e-9
 
 
-def test_bounds_against_brute_force(solver):
-    net, dem = small_problem()
+def test_bounds_against_brute_force(case):
+    solver, net, dem, optimum = case
     if solver.accepts(net, dem) is not None:
         pytest.skip(solver.accepts(net, dem))
-    optimum = brute_force_values(net, dem)[0][tuple(int(c) for c in net.capacities)]
     res = solver.solve(net, dem, seed=3)
     if solver.tags.exact:
         assert res.value == pytest.approx(optimum, rel=1e-9)
@@ -141,12 +122,25 @@ def test_bounds_against_brute_force(solver):
         assert res.value >= optimum - slack
 
 
-def test_dataset_schema_and_provenance(solver, tmp_path):
-    net, dem = small_problem()
+def test_deterministic_and_non_mutating(case):
+    solver, net, dem, _ = case
+    if solver.accepts(net, dem) is not None:
+        pytest.skip(solver.accepts(net, dem))
+    before = _snapshot(net, dem)
+    first = solver.solve(net, dem, seed=1).to_dataset()
+    second = solver.solve(net, dem, seed=1).to_dataset()
+    xr.testing.assert_identical(_comparable(first), _comparable(second))
+    for a, b in zip(before, _snapshot(net, dem), strict=True):
+        np.testing.assert_array_equal(a, b)
+
+
+def test_dataset_schema_and_provenance(case, tmp_path):
+    solver, net, dem, _ = case
     if solver.accepts(net, dem) is not None:
         pytest.skip(solver.accepts(net, dem))
     res = solver.solve(net, dem, seed=2)
     ds = res.to_dataset()
+    assert schema.check(ds) == []
     for name, var in ds.data_vars.items():
         assert var.dims == SCHEMA[name].dims
         assert var.attrs["units"] == SCHEMA[name].units
@@ -162,8 +156,8 @@ def test_dataset_schema_and_provenance(solver, tmp_path):
         xr.testing.assert_identical(back.load(), ds)
 
 
-def test_bid_prices_are_non_negative(solver):
-    net, dem = small_problem()
+def test_bid_prices_are_non_negative(case):
+    solver, net, dem, _ = case
     if not solver.tags.gives_bid_prices or solver.accepts(net, dem) is not None:
         pytest.skip("no bid prices on this problem")
     res = solver.solve(net, dem, seed=4)
@@ -179,8 +173,8 @@ def test_bid_prices_are_non_negative(solver):
             assert np.all(np.isnan(table[:, c + 1 :, i]))
 
 
-def test_solves_from_a_mid_horizon_state(solver):
-    net, dem = small_problem()
+def test_solves_from_a_mid_horizon_state(case):
+    solver, net, dem, _ = case
     if solver.accepts(net, dem) is not None:
         pytest.skip(solver.accepts(net, dem))
     state = BookingState(period=dem.n_periods // 2, capacity=tuple(int(c) // 2 for c in
@@ -195,13 +189,29 @@ def test_solves_from_a_mid_horizon_state(solver):
         assert res.value <= solver.solve(net, dem, seed=5).value + 1e-9 + 3 * (res.stderr or 0)
 
 
+@pytest.mark.parametrize(("name", "kind"), REFUSED, ids=[f"{n}-{k}" for n, k in REFUSED])
+def test_refuses_a_kind_it_does_not_solve_in_one_line(name, kind):
+    solver = REGISTRY[name]()
+    net, dem, _ = problem_of(kind)
+    reason = solver.refusal_reason(net, dem)
+    assert reason is not None and repr(kind) in reason and "\n" not in reason
+    with pytest.raises(InputError) as err:
+        solver.solve(net, dem)
+    assert str(err.value) == f"{name}: cannot run on this problem: {reason}"
+
+
+def test_every_kind_is_covered():
+    assert set(ONE_SEAT) == set(KINDS) == set(BRUTE_FORCE)
+    assert {k for _, k in CASES} == set(KINDS)
+
+
 def test_unknown_parameter_lists_valid_ones(solver):
     with pytest.raises(InputError, match="valid parameters"):
         type(solver)(no_such_setting=1)
 
 
 def test_bad_state_is_refused(solver):
-    net, dem = small_problem()
+    net, dem, _ = problem_of(solver.demand_kinds[0])
     with pytest.raises(InputError, match="state.period"):
         solver.solve(net, dem, state=BookingState(period=dem.n_periods))
     with pytest.raises(InputError, match="state.capacity"):

@@ -49,7 +49,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 def run(args: argparse.Namespace) -> int:
     from rmkit.cli.info import summary
     from rmkit.errors import InputError
-    from rmkit.model.generators import generate
+    from rmkit.model.families import generate
     from rmkit.model.scenario import save_scenario
 
     if not str(args.out).lower().endswith(".toml"):

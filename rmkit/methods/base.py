@@ -184,8 +184,12 @@ class Solver:
         """``None`` when the method solves ``demand``'s kind, else the one-line reason."""
         if demand.kind in self.demand_kinds:
             return None
-        return (f"{self.name} solves {' or '.join(self.demand_kinds)} demand, not "
-                f"{demand.kind!r} demand")
+        reason = (f"{self.name} solves {' or '.join(self.demand_kinds)} demand, not "
+                  f"{demand.kind!r} demand")
+        if "independent" in self.demand_kinds:  # the view of rmkit.methods.independent_view
+            reason += (f"; '{self.name}:independent' runs it on an independent-demand "
+                       "approximation")
+        return reason
 
     def refusal_reason(self, network: Network, demand: DemandModel) -> str | None:
         """Why the method cannot run on this problem (its demand kind first), else ``None``."""
@@ -329,9 +333,22 @@ def load_all() -> dict[str, type[Solver]]:
     return REGISTRY
 
 
+#: Derived method names ``"<method>:<view>"`` -> a factory ``(method name, settings) -> Solver``,
+#: registered by the module that defines the view (e.g. ``:independent``).
+VIEWS: dict[str, Callable[[str, dict[str, Any]], Solver]] = {}
+
+
+def register_view(suffix: str, factory: Callable[[str, dict[str, Any]], Solver]) -> None:
+    """Make ``"<method>:<suffix>"`` a method name that ``factory`` builds."""
+    VIEWS[suffix] = factory
+
+
 def get_solver(name: str, **settings: Any) -> Solver:
     """A solver instance by method name; an unknown name lists the valid ones."""
     reg = load_all()
     if name not in reg:
+        base, sep, suffix = name.rpartition(":")
+        if sep and suffix in VIEWS:
+            return VIEWS[suffix](base, settings)
         raise InputError(f"method: unknown method {name!r}; valid methods: {', '.join(sorted(reg))}")
     return reg[name](**settings)

@@ -28,6 +28,11 @@ The optimal policy (``result.policy``, a :class:`~rmkit.results.StatePolicy`; no
 ``values``
     float64 ``(n_states,)``: ``V_{t0}`` over the whole grid.
 
+Choice demand (:mod:`rmkit.model.choice`) is solved by the choice DP of
+:mod:`rmkit.methods.shared.choice_dp` (Liu & van Ryzin 2008): the decision bits are then the
+optimal offer set of every state, replayed by the same ``decisions`` control; problems above
+``max_work`` subsets x states x periods are refused up front.
+
 Problems whose estimated memory exceeds ``max_memory_gb`` are refused up front
 (:class:`rmkit.errors.ProblemTooLargeError`); :meth:`ExactDP.accepts` gives the same reason so
 comparisons can skip the method.
@@ -41,6 +46,7 @@ import numpy as np
 
 from rmkit.errors import ProblemTooLargeError
 from rmkit.methods.base import Param, Problem, SolveOutput, Solver, Tags, positive_float, register
+from rmkit.methods.shared import choice_dp
 from rmkit.methods.shared.network_dp import (
     DEFAULT_MAX_MEMORY_GB,
     flat_index,
@@ -59,23 +65,33 @@ def _is_bool(v: Any) -> bool:
 
 @register
 class ExactDP(Solver):
-    """Exact network DP by backward induction (Talluri & van Ryzin 2004, section 3.1)."""
+    """Exact network DP by backward induction (Talluri & van Ryzin 2004, section 3.1); under
+    choice demand the DP over offer sets (Liu & van Ryzin 2008)."""
 
     name = "exact"
     tags = Tags(exact=True, upper_bound=False, small_state_space=True, control="decisions",
                 reference=True)
     citation = (
         "K. T. Talluri and G. J. van Ryzin (2004), The Theory and Practice of Revenue "
-        "Management, Springer, sec. 3.1 (the network dynamic program)"
+        "Management, Springer, sec. 3.1 (the network dynamic program); Q. Liu and G. van "
+        "Ryzin (2008), On the choice-based linear programming model for network revenue "
+        "management, MSOM 10(2):288-310 (the DP under choice demand)"
     )
+    demand_kinds = ("independent", "choice")
     refusal = ProblemTooLargeError
     params = {
         "max_memory_gb": Param(DEFAULT_MAX_MEMORY_GB, "a number of GiB > 0", positive_float),
         "keep_decisions": Param(True, "True or False", _is_bool),
+        "max_work": Param(choice_dp.DEFAULT_MAX_WORK, "a number > 0 (choice demand: offer "
+                          "sets x states x periods)", positive_float),
     }
 
     def accepts(self, network: Network, demand: DemandModel) -> str | None:
         params = self._checked_params()
+        if demand.kind == "choice":
+            return choice_dp.too_large_reason(
+                network, demand, demand.n_periods, float(params["max_memory_gb"]),
+                params["keep_decisions"], float(params["max_work"]))
         return too_large_reason(
             network, demand.n_periods, float(params["max_memory_gb"]), params["keep_decisions"]
         )
@@ -83,16 +99,27 @@ class ExactDP(Solver):
     def marginal_values(self, network: Network, demand: DemandModel, periods: np.ndarray,
                         states: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         params = self._checked_params()
+        if demand.kind == "choice":
+            return marginal_values(network, demand, periods, states,
+                                   float(params["max_memory_gb"]),
+                                   solve=choice_dp.solve_choice_dp)
         return marginal_values(network, demand, periods, states, float(params["max_memory_gb"]))
 
     def _solve(self, problem: Problem, params: dict[str, Any], seed: int | None) -> SolveOutput:
-        dp = solve_network_dp(
-            problem.network,
-            problem.demand,
-            problem.period,
-            keep_decisions=params["keep_decisions"],
-            max_memory_gb=float(params["max_memory_gb"]),
-        )
+        if problem.demand.kind == "choice":
+            dp = choice_dp.solve_choice_dp(
+                problem.network, problem.demand, problem.period,
+                keep_decisions=params["keep_decisions"],
+                max_memory_gb=float(params["max_memory_gb"]), max_work=float(params["max_work"]),
+            )
+        else:
+            dp = solve_network_dp(
+                problem.network,
+                problem.demand,
+                problem.period,
+                keep_decisions=params["keep_decisions"],
+                max_memory_gb=float(params["max_memory_gb"]),
+            )
         x0 = problem.capacity
         n_bytes = (problem.network.n_products + 7) // 8
         bits = (dp.decision_bits if dp.decision_bits is not None

@@ -251,7 +251,7 @@ def demand_kinds() -> dict[str, type[DemandModel]]:
 
 
 #: Modules of the demand kinds rmkit ships (each registers itself on import).
-_BUNDLED_KINDS = ("rmkit.model.independent",)
+_BUNDLED_KINDS = ("rmkit.model.independent", "rmkit.model.choice")
 #: The kind ``DemandModel(...)`` builds: the standard independent-demand model.
 DEFAULT_KIND = "independent"
 

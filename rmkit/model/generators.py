@@ -46,8 +46,7 @@ requests per period. Capacity follows the same load-factor rule as the hub and s
 from __future__ import annotations
 
 import math
-from collections.abc import Callable
-from typing import Any
+from typing import Any, NamedTuple
 
 import numpy as np
 
@@ -155,6 +154,65 @@ def _settings_text(settings: dict[str, Any]) -> str:
 
 
 # ------------------------------------------------------------------ hub and spoke
+def hub_spoke_shape(n: int, kappa: float, low: int, high: int, rng: np.random.Generator
+                    ) -> tuple[list[Leg], list[Product], list[tuple[int, int]]]:
+    """Legs, products and ordered location pairs of the hub-and-spoke family (module docstring);
+    draws the cheap fares, the first numbers of ``rng``."""
+    places = [place_id(k) for k in range(n + 1)]
+    legs = [Leg(id=f"{places[k]}-{places[0]}", capacity=0, name=f"{place_name(k)} to {place_name(0)}")
+            for k in range(1, n + 1)]
+    legs += [Leg(id=f"{places[0]}-{places[k]}", capacity=0, name=f"{place_name(0)} to {place_name(k)}")
+             for k in range(1, n + 1)]
+    pairs = [(o, d) for o in range(n + 1) for d in range(n + 1) if o != d]
+    cheap = {}
+    for o, d in pairs:  # one draw per unordered pair, in a fixed order
+        if (d, o) not in cheap:
+            cheap[(o, d)] = float(rng.integers(low, high + 1))
+        else:
+            cheap[(o, d)] = cheap[(d, o)]
+    products = []
+    for o, d in pairs:
+        path = (f"{places[o]}-{places[d]}",) if 0 in (o, d) else (
+            f"{places[o]}-{places[0]}", f"{places[0]}-{places[d]}")
+        for c, fare in ((0, cheap[(o, d)]), (1, kappa * cheap[(o, d)])):
+            products.append(Product(
+                id=f"{places[o]}-{places[d]}-{c}", fare=fare, legs=path,
+                name=f"{place_name(o)} to {place_name(d)} {'cheap' if c == 0 else 'expensive'}",
+                fare_class=str(c), origin=place_name(o), destination=place_name(d),
+            ))
+    return legs, products, pairs
+
+
+class HubSpokeStart(NamedTuple):
+    """Checked settings of a hub-and-spoke generator, its shape, and each pair's arrival rate."""
+
+    settings: tuple[int, float, float, int, float, tuple[int, int], int]
+    rng: np.random.Generator
+    legs: list[Leg]
+    products: list[Product]
+    pairs: list[tuple[int, int]]
+    rates: np.ndarray
+
+
+def hub_spoke_start(owner: str, spokes: Any, alpha: Any, kappa: Any, periods: Any, arrival: Any,
+                    fares: Any, seed: Any) -> HubSpokeStart:
+    """Check the family's settings, draw the cheap fares and the pair weights (in that order):
+    pair (o, d) gets ``arrival * weight / sum of weights`` customers per period."""
+    n = _whole(owner, "spokes", spokes, 1)
+    alpha = _positive(owner, "alpha", alpha)
+    kappa = _positive(owner, "kappa", kappa, 1.0, strict=False)
+    t_count = _whole(owner, "periods", periods, 2)
+    arrival = _positive(owner, "arrival", arrival)
+    if arrival > 1.0:
+        raise param_error(owner, "arrival", "a request probability in (0, 1]", arrival)
+    (low, high), seed, rng = _fares_and_rng(owner, fares, seed)
+    legs, products, pairs = hub_spoke_shape(n, kappa, low, high, rng)
+    weights = rng.random(len(pairs))
+    rates = arrival * weights / weights.sum()
+    return HubSpokeStart((n, alpha, kappa, t_count, arrival, (low, high), seed), rng, legs,
+                         products, pairs, rates)
+
+
 def hub_and_spoke(
     spokes: int,
     *,
@@ -186,29 +244,9 @@ def hub_and_spoke(
         Seed of the numpy PCG64 generator.
     """
     owner = "hub_and_spoke"
-    n = _whole(owner, "spokes", spokes, 1)
-    alpha = _positive(owner, "alpha", alpha)
-    kappa = _positive(owner, "kappa", kappa, 1.0, strict=False)
-    t_count = _whole(owner, "periods", periods, 2)
-    arrival = _positive(owner, "arrival", arrival)
-    if arrival > 1.0:
-        raise param_error(owner, "arrival", "a request probability in (0, 1]", arrival)
-    (low, high), seed, rng = _fares_and_rng(owner, fares, seed)
-
-    places = [place_id(k) for k in range(n + 1)]
-    legs = [Leg(id=f"{places[k]}-{places[0]}", capacity=0, name=f"{place_name(k)} to {place_name(0)}")
-            for k in range(1, n + 1)]
-    legs += [Leg(id=f"{places[0]}-{places[k]}", capacity=0, name=f"{place_name(0)} to {place_name(k)}")
-             for k in range(1, n + 1)]
-    pairs = [(o, d) for o in range(n + 1) for d in range(n + 1) if o != d]
-    cheap = {}
-    for o, d in pairs:  # one draw per unordered pair, in a fixed order
-        if (d, o) not in cheap:
-            cheap[(o, d)] = float(rng.integers(low, high + 1))
-        else:
-            cheap[(o, d)] = cheap[(d, o)]
-    weights = rng.random(len(pairs))
-    rates = arrival * weights / weights.sum()
+    hs = hub_spoke_start(owner, spokes, alpha, kappa, periods, arrival, fares, seed)
+    n, alpha, kappa, t_count, arrival, (low, high), seed = hs.settings
+    rng, legs, products, pairs, rates = hs.rng, hs.legs, hs.products, hs.pairs, hs.rates
     switch = rng.integers(t_count // 2, (2 * t_count) // 3 + 1, size=len(pairs))
 
     t = np.arange(t_count)[:, None]
@@ -218,16 +256,6 @@ def hub_and_spoke(
     p[:, 0::2] = rates[None, :] * (1.0 - dear_share)
     p[:, 1::2] = rates[None, :] * dear_share
 
-    products = []
-    for o, d in pairs:
-        path = (f"{places[o]}-{places[d]}",) if 0 in (o, d) else (
-            f"{places[o]}-{places[0]}", f"{places[0]}-{places[d]}")
-        for c, fare in ((0, cheap[(o, d)]), (1, kappa * cheap[(o, d)])):
-            products.append(Product(
-                id=f"{places[o]}-{places[d]}-{c}", fare=fare, legs=path,
-                name=f"{place_name(o)} to {place_name(d)} {'cheap' if c == 0 else 'expensive'}",
-                fare_class=str(c), origin=place_name(o), destination=place_name(d),
-            ))
     settings = {"spokes": n, "alpha": alpha, "kappa": kappa, "periods": t_count,
                 "arrival": arrival, "fares": [low, high], "seed": seed}
     return _finish(owner, legs, products, p, alpha,
@@ -315,31 +343,3 @@ def line_network(
     return _finish(owner, leg_list, products, curve.probabilities, alpha,
                    f"line_{k}_{m}_{alpha:g}_{t_count}_s{seed}",
                    f"generated line: {_settings_text(settings)}")
-
-
-#: Generator name (as used by ``rmkit generate`` and sweep grids) -> function.
-GENERATORS: dict[str, Callable[..., Scenario]] = {
-    "hub-spoke": hub_and_spoke,
-    "line": line_network,
-}
-
-#: The positional size argument of each generator.
-SIZE_ARGUMENT = {"hub-spoke": "spokes", "line": "legs"}
-
-
-def generate(family: str, **settings: Any) -> Scenario:
-    """Run a generator by family name with keyword settings (its size argument included)."""
-    if family not in GENERATORS:
-        raise InputError(f"generator: unknown family {family!r}; valid: {', '.join(GENERATORS)}")
-    size_name = SIZE_ARGUMENT[family]
-    if size_name not in settings:
-        raise InputError(f"generator {family!r}: needs {size_name!r}")
-    size = settings.pop(size_name)
-    fn = GENERATORS[family]
-    try:
-        return fn(size, **settings)
-    except TypeError as err:  # unknown keyword
-        import inspect
-
-        valid = ", ".join(inspect.signature(fn).parameters)
-        raise InputError(f"generator {family!r}: {err}; valid settings: {valid}") from None

@@ -30,7 +30,7 @@ from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any, ClassVar, NamedTuple
 
 import numpy as np
-from pydantic import BaseModel, ConfigDict, ValidationError
+from pydantic import BaseModel, ConfigDict
 
 from rmkit.errors import InputError
 from rmkit.model.demand import (
@@ -210,12 +210,9 @@ class IndependentDemand(DemandModel):
     # ---------------------------------------------------------------- files
     @classmethod
     def from_spec(cls, table: dict[str, Any], network: Network) -> IndependentDemand:
-        try:
-            spec = IndependentSpec.model_validate(table)
-        except ValidationError as err:
-            from rmkit.model.spec_errors import pydantic_message
+        from rmkit.model.spec_errors import validated
 
-            raise InputError(pydantic_message(err, IndependentSpec, prefix=("demand",))) from None
+        spec = validated(IndependentSpec, table, ("demand",))
         return _demand_from_spec(spec, network)
 
     def to_spec(self, network: Network) -> dict[str, Any]:

@@ -66,3 +66,14 @@ def _inner_model(ann: Any) -> type[BaseModel] | None:
         if found is not None:
             return found
     return None
+
+
+def validated(model: type[BaseModel], table: dict[str, Any], prefix: tuple[Any, ...]) -> Any:
+    """``model`` read from a TOML table, or :class:`rmkit.errors.InputError` with the one-line
+    message of :func:`pydantic_message`."""
+    from rmkit.errors import InputError
+
+    try:
+        return model.model_validate(table)
+    except ValidationError as err:
+        raise InputError(pydantic_message(err, model, prefix=prefix)) from None

@@ -33,7 +33,7 @@ from __future__ import annotations
 import math
 import os
 import sys
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -475,8 +475,12 @@ def marginal_values(
     periods: np.ndarray,
     states: np.ndarray,
     max_memory_gb: float = DEFAULT_MAX_MEMORY_GB,
+    solve: Callable[..., NetworkDP] | None = None,
 ) -> tuple[np.ndarray, np.ndarray]:
     """Exact leg marginal values ``(K, m)`` and product opportunity costs ``(K, n)`` at K pairs.
+
+    ``solve`` is the backward pass (default :func:`solve_network_dp`; another demand kind passes
+    its own DP with the same keywords).
 
     Pair q is (period ``t = periods[q]``, seats left ``x = states[q]``): leg i's value
     ``V_{t+1}(x) - V_{t+1}(x - e_i)`` and product j's ``V_{t+1}(x) - V_{t+1}(x - A_j)``, ``+inf``
@@ -505,8 +509,8 @@ def marginal_values(
     ok = np.all(x[:, None, :] >= moves[None, :, :], axis=2)  # (K, m + n)
     there = np.where(ok, here[:, None] - moves @ strides, here[:, None])
     wanted = np.unique(np.concatenate([here, there.ravel()]))
-    dp = solve_network_dp(network, demand, 0, keep_decisions=False, probe=wanted,
-                          max_memory_gb=max_memory_gb)
+    dp = (solve or solve_network_dp)(network, demand, 0, keep_decisions=False, probe=wanted,
+                                     max_memory_gb=max_memory_gb)
     values = dp.probe_values  # (T, U): V_{t+1} at the probed states
     rows = periods[:, None]
     diff = values[rows, np.searchsorted(wanted, here)[:, None]] - values[

@@ -93,7 +93,7 @@ class ScenarioRef:
             from rmkit.model.scenario import load_scenario
 
             return load_scenario(self.file)
-        from rmkit.model.generators import generate
+        from rmkit.model.families import generate
 
         return generate(self.generator, **self.settings)
 
@@ -129,7 +129,7 @@ def _file_label(path: str) -> str:
 
 
 def _expand_scenarios(spec: GridSpec, folder: Path) -> list[ScenarioRef]:
-    from rmkit.model.generators import GENERATORS
+    from rmkit.model.families import GENERATORS
 
     out: list[ScenarioRef] = []
     for i, entry in enumerate(spec.scenario):
