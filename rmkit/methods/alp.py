@@ -47,9 +47,10 @@ inequality tight, which eliminates theta: the ALP is the single LP
     \\min \\; c^\\top v_{t_0} + \\sum_t (c^\\top a_t + 1^\\top b_t)
 
 over ``v_t, a_t, b_t, w_t >= 0`` subject to the two row families above, with
-``(T - t0)(2L + n + nnz(A))`` columns and ``(T - t0)(L + n)`` rows (Tong & Topaloglu 2014 reach a
-compact LP of this size). It is solved once by HiGHS (interior point with crossover by default);
-``theta_t = sum_{s >= t} (c'a_s + 1'b_s)`` is recovered afterwards.
+``(T - t0)(2L + n + nnz(A))`` columns and ``(T - t0)(L + n)`` rows, the same kind of reduction as
+Tong & Topaloglu (2014) [their exact formulation cited from memory]. It is solved once by HiGHS
+(interior point with crossover by default); ``theta_t = sum_{s >= t} (c'a_s + 1'b_s)`` is
+recovered afterwards.
 
 Why ``v >= 0`` loses nothing: in the dual of the ALP (first moments of state-action frequencies
 ``mu_t``) a free ``v`` gives equalities ``E_{mu_t}[x_i] = E_{mu_{t-1}}[x_i - sum_j p_j u_j A_ij]``
@@ -57,7 +58,7 @@ and ``v >= 0`` relaxes them to ``<=``. A solution of the relaxed dual whose mean
 short can raise its ``x_i`` values towards ``c_i`` (raising ``x`` keeps every ``u`` feasible and
 changes no revenue) until the mean is met exactly, so both duals have the same optimum. The
 bound is therefore Adelman's, and the bid prices are non-negative. (Checked: the free-``v`` LP
-gives the same values on the public instances.)
+gives the same values on rm_200_4_1.0_4.0 and rm_200_4_1.6_8.0.)
 
 Bid prices: the value of a seat of leg i for a request in period t is ``v_{t+1,i}`` (the
 approximation is linear in x); ``bid_price_table[t, x, i] = v_{t+1,i}`` for ``1 <= x <= c_i``,
