@@ -36,18 +36,23 @@ relaxation at the multipliers of ``lr`` (``lambda``, which split each fare over 
     \\qquad g_{tj} = f_j - \\sum_{i \\in j} \\Delta_i(x_i).
 
 Why this penalty: the Lagrangian values are a supersolution of the network DP (``W_t(x) >=
-E[r_t + W_{t+1}] `` for every x and u, by the leg DPs and the fare split), so every path's
-penalised maximum is at most ``W_t0(c)``, the LR bound itself, whatever the decisions: the
-bound can only improve on LR. Affine ALP values give the same guarantee against the looser ALP
-bound; DLP duals are no supersolution and give none. (Checked on rm_200_4_1.6_8.0: see
-benchmarks/bench_bounds.py.)
+E[r_t + W_{t+1}]`` for every x and u, by the leg DPs and the fare split), so every path's
+penalised maximum is at most ``W_t0(c)``, the LR bound itself, whatever the decisions: the bound
+can only improve on LR, and it does wherever the split ``(f_j - sum_i Delta_i)^+ <= sum_i
+(lambda_ij - Delta_i)^+`` is loose at the states a path visits. Affine ALP values give the same
+guarantee against the looser ALP bound; DLP duals give none.
 
 The inner problem, per path
 ---------------------------
-Bounding ``g_tj <= sum_{i in j} (lambda_itj - Delta_i)^+`` for the products not requested (each
-leg open) and giving each leg its own copy of the accept decision of the realized request, tied
-back by multipliers ``eta`` that add to zero over the request's legs, makes the path problem
-separate by legs: leg i runs a DP over its own seats along the path,
+``inner="exact"`` (the default ``"auto"`` when the network has at most :data:`EXACT_STATES` seat
+vectors) solves it by backward induction over every network state along the path: one period
+costs ``O(states)`` given the realized request (kernel ``exact_path_bounds``).
+
+``inner="lagrangian"`` (larger networks) bounds it from above instead. Bounding ``g_tj <=
+sum_{i in j} (lambda_itj - Delta_i)^+`` for the products not requested (each leg open) and
+giving each leg its own copy of the accept decision of the realized request, tied back by
+multipliers ``eta`` that add to zero over the request's legs, makes the path problem separate by
+legs: leg i runs a DP over its own seats along the path,
 
 .. math::
 
@@ -61,8 +66,11 @@ identity). For every ``eta`` the sum ``sum_i D_i(t0, c_i)`` bounds the path's ma
 ``eta = 0`` every leg's problem is its own ideal-penalty problem and ``sum_i D_i = `` the LR bound
 on every path (checked in the tests); projected subgradient steps on ``eta`` (``iterations``,
 step ``step * fare / sqrt(k+1)``, ``fare`` the mean fare of multi-leg products) lower it, and
-each path keeps its least value. A path whose legs agree on every request is solved exactly
-(the dual is attained by a joint decision); the message reports how many did.
+each path keeps its least value. When the legs agree on every request the dual is attained by a
+joint decision: it is then the maximum of the split path problem (still an upper bound on the
+exact inner maximum). The split gives back the looseness that makes LR a bound, so on the public
+instances this variant improves on LR only marginally (benchmarks/bench_bounds.py); the exact
+variant is what tightens, and it needs a small state space.
 
 The estimate is the mean over ``samples`` request streams from ``DemandModel.sample_streams``
 (the same paths as ``ph`` with the same seed and sample count) with standard error ``s/sqrt(K)``.
@@ -191,8 +199,8 @@ class InformationRelaxation(Solver):
         else:
             _, best, agreed = penalised_bounds(problem, streams, lam, values,
                                                params["iterations"], params["step"])
-            how = (f"inner problem solved exactly on {int(agreed.sum())} paths, bounded by its "
-                   "Lagrangian dual on the rest")
+            how = (f"inner problem bounded by its Lagrangian dual over legs (split problem solved "
+                   f"on {int(agreed.sum())} paths)")
         value, stderr = sample_mean_and_stderr(best)
         return SolveOutput(
             variables={"value": np.float64(value), "value_stderr": np.float64(stderr)},
