@@ -39,11 +39,13 @@ conventions of ``lr``.
 
 Cost: the program has one hinge per (period, leg, product, seat). HiGHS solves it in well under a
 second on small networks but not within five minutes (simplex or interior point) on the
-200-period public instances, about 280,000 columns; ``solver="clarabel"`` (an interior point
-method with a sparse direct factorisation) solves those in about five to fifteen minutes each on
-the shared 2-core machine, and the 600-period 8-spoke instances (about 1.8 million hinges) are
-out of reach (benchmarks/bench_bounds.py). ``time_limit`` bounds the wait; the subgradient ``lr``
-remains the practical solver there, and this LP is the exact reference it is checked against.
+200-period public instances, about 280,000 columns. ``solver="clarabel"`` (an interior-point
+method with a sparse direct factorisation) gets there in minutes on the shared 2-core machine but
+may stop at reduced accuracy (status ``optimal_inaccurate``); the reported value is still a valid
+bound, since it comes from the leg DPs at the returned multipliers. The 600-period 8-spoke
+instances (about 1.8 million hinges) are out of reach (benchmarks/bench_bounds.py). ``time_limit``
+bounds the wait; the subgradient ``lr`` remains the practical solver there, and this LP is the
+exact reference it is checked against on small networks.
 """
 
 from __future__ import annotations
