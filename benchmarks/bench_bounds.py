@@ -36,7 +36,7 @@ def run(method, net, dem, **settings):
 
 
 def line(label, res, seconds) -> None:
-    se = f" +- {res.stderr:.1f}" if res.stderr is not None else ""
+    se = f" +- {res.stderr:.3g}" if res.stderr is not None else ""
     print(f"  {label:<26} {res.value:12.2f}{se:<10} {seconds:8.2f} s  {res.status}")
 
 
