@@ -184,7 +184,8 @@ PUBLIC_LR_LP_ENV = "RMKIT_LR_LP_PUBLIC"
 @pytest.mark.parametrize("name", sorted(LR_BOUND))
 def test_lr_lp_on_public_instances(name):
     scen = read_hub_spoke(vendored(name))
-    res = solve("lr-lp", scen.network, scen.demand, solver="clarabel", time_limit=3600.0)
+    res = solve("lr-lp", scen.network, scen.demand, solver="clarabel", time_limit=3600.0,
+                max_hinges=10**7)
     lr = solve("lr", scen.network, scen.demand)
     assert res.status in ("optimal", "optimal_inaccurate")
     if res.status == "optimal":  # the leg DPs at the LP multipliers meet the LP objective
@@ -343,10 +344,22 @@ def test_ir_below_perfect_hindsight_on_the_same_paths():
     assert res.payload["lr_value"] <= LR_BOUND["rm_200_4_1.6_8.0"]
 
 
+def test_size_refusals_name_the_way_out():
+    from rmkit import ProblemTooLargeError
+
+    scen = read_hub_spoke(vendored("rm_200_4_1.6_8.0"))
+    with pytest.raises(ProblemTooLargeError, match="max_hinges"):
+        get_solver("lr-lp").solve(scen.network, scen.demand)
+    assert get_solver("lr-lp").accepts(scen.network, scen.demand) is not None
+    with pytest.raises(ProblemTooLargeError, match="inner='lagrangian'"):
+        get_solver("ir", inner="exact", samples=2).solve(scen.network, scen.demand)
+
+
 # --------------------------------------------------------------------------- settings
 @pytest.mark.parametrize("name, setting, value", [
     ("alp", "solver", "dual"), ("lr-lp", "time_limit", -1), ("ir", "samples", 1),
     ("ir", "inner", "greedy"), ("ir", "step", 0.0), ("ir", "iterations", 1.5),
+    ("lr-lp", "max_hinges", 0),
 ])
 def test_bad_settings_use_the_one_message(name, setting, value):
     net, dem = small_problem()

@@ -118,6 +118,8 @@ def lagrangian_penalty(problem: Problem) -> tuple[np.ndarray, np.ndarray]:
 #: ``inner="auto"`` solves each path's problem exactly when the network has at most this many
 #: states (seat vectors up to the state's capacity): one DP over all of them per path.
 EXACT_STATES = 4096
+#: ``inner="exact"`` refuses more states than this (its tables hold periods x states x products).
+MAX_EXACT_STATES = 200_000
 INNER_CHOICES = ("auto", "exact", "lagrangian")
 
 
@@ -192,6 +194,12 @@ class InformationRelaxation(Solver):
         n_states = int(np.prod(problem.capacity + 1.0))
         exact = params["inner"] == "exact" or (params["inner"] == "auto"
                                                and n_states <= EXACT_STATES)
+        if exact and n_states > MAX_EXACT_STATES:
+            from rmkit.errors import ProblemTooLargeError
+
+            raise ProblemTooLargeError(
+                f"ir: inner='exact' needs a DP over {n_states:.3g} network states, above "
+                f"{MAX_EXACT_STATES:,}; use inner='lagrangian' (or 'auto')")
         if exact:
             best = exact_bounds(problem, streams, values)
             agreed = np.ones(best.size, dtype=np.bool_)

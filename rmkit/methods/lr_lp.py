@@ -54,7 +54,8 @@ from typing import Any
 
 import numpy as np
 
-from rmkit.methods.base import Problem, SolveOutput, Solver, Tags, register
+from rmkit.errors import ProblemTooLargeError
+from rmkit.methods.base import Param, Problem, SolveOutput, Solver, Tags, positive_int, register
 from rmkit.methods.shared.leg_dp import bid_prices_at, leg_tables, leg_values, value_at
 from rmkit.methods.shared.sparse_lp import LP_PARAMS, report_failure, solve_sparse_lp
 
@@ -125,6 +126,17 @@ def lagrangian_program(incidence: np.ndarray, fares: np.ndarray, prob: np.ndarra
     return cost, matrix, row_lower, row_upper, (t_of, leg, prod), lambda_col
 
 
+#: Default ceiling on the hinge count (one column and one row each): small networks solve in well
+#: under a second; the 200-period public instances (230,000-370,000 hinges) take minutes to hours.
+DEFAULT_MAX_HINGES = 200_000
+
+
+def hinge_count(incidence: np.ndarray, prob: np.ndarray, capacity: np.ndarray) -> int:
+    """Hinge columns of the program at full ``capacity``: seats times requested (period, product)."""
+    requested = (prob > 0).sum(axis=0)  # periods in which each product may be requested
+    return int((np.asarray(capacity) * (incidence @ requested)).sum())
+
+
 def full_split(incidence: np.ndarray, fares: np.ndarray, n_periods: int, capacity: np.ndarray,
                triples, lambda_col: np.ndarray, primal: np.ndarray) -> np.ndarray:
     """``(L, T, n)`` multipliers: the LP's where it has them, else a split that loses nothing.
@@ -160,7 +172,19 @@ class LagrangianLP(Solver):
         "(2009), Using Lagrangian relaxation to compute capacity-dependent bid prices in "
         "network revenue management, Operations Research 57(3):637-649"
     )
-    params = LP_PARAMS
+    refusal = ProblemTooLargeError
+    params = {
+        **LP_PARAMS,
+        "max_hinges": Param(DEFAULT_MAX_HINGES, "an integer >= 1", positive_int),
+    }
+
+    def accepts(self, network, demand) -> str | None:
+        hinges = hinge_count(network.incidence, demand.probabilities, network.capacities)
+        limit = self._checked_params()["max_hinges"]
+        if hinges > limit:
+            return (f"the program has {hinges:,} hinge columns, above max_hinges={limit:,}; raise "
+                    "max_hinges to solve it anyway (minutes or more), or use lr")
+        return None
 
     def _solve(self, problem: Problem, params: dict[str, Any], seed: int | None) -> SolveOutput:
         net, cap = problem.network, problem.capacity
