@@ -43,9 +43,11 @@ second on small networks but not within five minutes (simplex or interior point)
 method with a sparse direct factorisation) gets there in minutes on the shared 2-core machine but
 may stop at reduced accuracy (status ``optimal_inaccurate``); the reported value is still a valid
 bound, since it comes from the leg DPs at the returned multipliers. The 600-period 8-spoke
-instances (about 1.8 million hinges) are out of reach (benchmarks/bench_bounds.py). ``time_limit``
-bounds the wait; the subgradient ``lr`` remains the practical solver there, and this LP is the
-exact reference it is checked against on small networks.
+instances (about 1.8 million hinges) are out of reach (benchmarks/bench_bounds.py). Programs with
+more than ``max_hinges`` hinges (default 200,000, which every public instance exceeds) are refused
+up front, so ``compare`` skips the method with that reason; ``time_limit`` bounds the wait. The
+subgradient ``lr`` remains the practical solver there, and this LP is the exact reference it is
+checked against on small networks.
 """
 
 from __future__ import annotations
