@@ -316,6 +316,9 @@ def register(cls: type[Solver]) -> type[Solver]:
         raise TypeError(f"two solvers are named {cls.name!r}")
     if not cls.citation:
         raise TypeError(f"{cls.__name__} must cite its paper in 'citation'")
+    if cls.tags.control == "bid_price" and not cls.tags.gives_bid_prices:
+        raise TypeError(f"{cls.__name__} gives no bid prices, so the bid_price control cannot "
+                        "steer sales by it; set Tags(control='') (or the control it does use)")
     REGISTRY[cls.name] = cls
     return cls
 
