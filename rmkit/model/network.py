@@ -21,7 +21,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from rmkit.errors import InputError
+from rmkit.errors import InputError, quoted
+from rmkit.limits import MAX_COUNT, MAX_FARE
 
 
 @dataclass(frozen=True)
@@ -85,9 +86,10 @@ class Network:
             if leg.id in index:
                 raise InputError(f"{where}.id: duplicate leg id {leg.id!r}; leg ids must be unique")
             cap = leg.capacity
-            if isinstance(cap, bool) or not isinstance(cap, (int, np.integer)) or cap < 0:
+            if (isinstance(cap, bool) or not isinstance(cap, (int, np.integer))
+                    or not 0 <= cap <= MAX_COUNT):
                 raise InputError(
-                    f"{where}.capacity: must be a whole number >= 0, got {cap!r} "
+                    f"{where}.capacity: must be a whole number in [0, {MAX_COUNT}], got {cap!r} "
                     f"(leg {leg.id!r}); give a non-negative integer seat count"
                 )
             index[leg.id] = i
@@ -105,10 +107,10 @@ class Network:
                 isinstance(fare, bool)
                 or not isinstance(fare, (int, float, np.floating, np.integer))
                 or not math.isfinite(float(fare))
-                or float(fare) <= 0
+                or not 0 < float(fare) <= MAX_FARE
             ):
                 raise InputError(
-                    f"{where}.fare: must be a finite number > 0, got {fare!r} "
+                    f"{where}.fare: must be a finite number > 0 and <= {MAX_FARE:g}, got {fare!r} "
                     f"(product {prod.id!r}); give a positive fare"
                 )
             if not prod.legs:
@@ -117,7 +119,7 @@ class Network:
                 if leg_id not in index:
                     raise InputError(
                         f"{where}.legs: product {prod.id!r} uses unknown leg {leg_id!r}; "
-                        f"known legs: {', '.join(index)}"
+                        f"known legs: {quoted(index)}"
                     )
                 if a[index[leg_id], j]:
                     raise InputError(
@@ -170,7 +172,7 @@ class Network:
         for i, leg in enumerate(self.legs):
             if leg.id == leg_id:
                 return i
-        raise InputError(f"leg: unknown leg id {leg_id!r}; known legs: {', '.join(self.leg_ids)}")
+        raise InputError(f"leg: unknown leg id {leg_id!r}; legs are {quoted(self.leg_ids)}")
 
     def product_legs(self, j: int) -> np.ndarray:
         """Indices of the legs product ``j`` uses."""

@@ -224,11 +224,13 @@ def grid_from_dict(data: dict[str, Any], folder: str | Path = ".") -> Grid:
 
 def load_grid(path: str | Path) -> Grid:
     """Read and expand a grid file (see the module docstring for its layout)."""
-    p = Path(path)
-    if not p.is_file():
-        raise InputError(f"{p}: no such grid file; give the path of a sweep grid .toml")
+    from rmkit.files import check_input, read_text
+
+    p = check_input(path, "sweep grid .toml")
     try:
-        data = tomllib.loads(p.read_text(encoding="utf-8"))
+        data = tomllib.loads(read_text(p, "sweep grid .toml"))
+    except InputError as err:
+        raise InputError(f"{p}: {err}") from None
     except tomllib.TOMLDecodeError as err:
         raise InputError(f"{p}: malformed TOML: {err}") from None
     grid = grid_from_dict(data, p.resolve().parent)
