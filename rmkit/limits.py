@@ -48,7 +48,7 @@ def whole_number(value: Any, field: str, *, low: int = 0, high: int = MAX_COUNT)
 
 def whole_rule(low: int, high: int = MAX_COUNT) -> str:
     """The rule of :func:`whole_number` in words (also used by argparse and pydantic messages)."""
-    return f"a whole number >= {low}" if high >= MAX_COUNT else f"a whole number in [{low}, {high}]"
+    return f"a whole number >= {low}" if high == MAX_COUNT else f"a whole number in [{low}, {high}]"
 
 
 def check_seed(value: Any, field: str = "seed") -> int:
