@@ -165,3 +165,16 @@ def test_ctrl_c_to_the_process_group_prints_no_worker_traceback(tmp_path):
     assert proc.returncode == 130, err
     assert "Traceback" not in err and "KeyboardInterrupt" not in err, err
     assert "run the same command to resume" in err
+
+
+@pytest.mark.parametrize(("seeds", "pattern"), [
+    (10**15, r"grid sweep\.seeds: 1,000,000,000,000,000 seeds needs about .* of memory available"),
+    ([0, 2**64], r"grid sweep\.seeds: seeds must be whole numbers in \[0, 9223372036854775807\]"),
+])
+def test_grid_seeds_are_checked_before_expanding(seeds, pattern):
+    from rmkit.workflows.sweep import grid_from_dict
+
+    grid = {"sweep": {"seeds": seeds}, "method": [{"method": "dlp"}],
+            "scenario": [{"generator": "line", "settings": {"legs": 2, "alpha": 1.0}}]}
+    with pytest.raises(InputError, match=pattern):
+        grid_from_dict(grid)

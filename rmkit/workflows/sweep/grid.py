@@ -16,6 +16,7 @@ from typing import Any
 from pydantic import BaseModel, ConfigDict, ValidationError
 
 from rmkit.errors import InputError
+from rmkit.limits import MAX_SEED
 
 
 class _Strict(BaseModel):
@@ -209,7 +210,18 @@ def grid_from_dict(data: dict[str, Any], folder: str | Path = ".") -> Grid:
     except ValidationError as err:
         raise _grid_error(err) from None
     seeds = spec.sweep.seeds
-    seeds = list(range(seeds)) if isinstance(seeds, int) else list(seeds)
+    if isinstance(seeds, int):
+        from rmkit.limits import check_memory
+
+        # every cell is an object in memory and a file in the store: refuse a count before
+        # expanding it (about a kilobyte per seed and cell)
+        check_memory(1024 * max(seeds, 0), f"{seeds:,} seeds", "grid sweep.seeds")
+        seeds = list(range(seeds))
+    else:
+        seeds = list(seeds)
+    if any(s > MAX_SEED for s in seeds):
+        raise InputError(f"grid sweep.seeds: seeds must be whole numbers in [0, {MAX_SEED}], got "
+                         f"{max(seeds)}")
     if not seeds or any(s < 0 for s in seeds):
         raise InputError(f"grid sweep.seeds: give a count >= 1 or whole numbers >= 0, got {seeds!r}")
     if len(set(seeds)) != len(seeds):
