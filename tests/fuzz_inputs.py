@@ -160,7 +160,7 @@ def scenario_cases(draw) -> Case:
     elif kind == "id":
         odd = draw(st.sampled_from(["a\\nb", "", " ", "x,y", "A=1", "é", "a\\u0000b"]))
         text = text.replace('"birch-cedar"', f'"{odd}"')
-        refuse = odd == ""
+        refuse = odd in ("", "a\\nb", "a\\u0000b")  # empty, or a control character
     elif kind == "unknown":
         text = text.replace("capacity = 2", "capacity = 2\nseats = 4")
     elif kind == "missing":

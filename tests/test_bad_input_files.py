@@ -86,6 +86,12 @@ def test_numbers_out_of_range(tmp_path, old, new, pattern):
     refused(write(tmp_path, BASE_TOML.replace(old, new)), pattern)
 
 
+@pytest.mark.parametrize("odd", ["a\\nb", "a\\u0000b", "a\\tb"])
+def test_ids_with_control_characters_are_refused(tmp_path, odd):
+    text = BASE_TOML.replace('"birch-cedar"', f'"{odd}"')
+    refused(write(tmp_path, text), r"leg\[1\]\.id: must not contain control characters")
+
+
 def test_huge_tables_are_refused_with_the_estimate(tmp_path, little_memory):
     text = BASE_TOML.replace("periods = 6", "periods = 1000000000")
     message = refused(write(tmp_path, text), r"demand\.periods: 1,000,000,000 periods x 3 products "

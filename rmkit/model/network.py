@@ -16,6 +16,7 @@ needs one seat on leg i. Every solver in rmkit reads the network only through th
 from __future__ import annotations
 
 import math
+import unicodedata
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
 
@@ -57,6 +58,16 @@ def grid_strides(capacities: np.ndarray) -> np.ndarray:
     return strides
 
 
+def _check_id(value: object, field: str) -> None:
+    """Ids are non-empty text without control characters: they label result files (NetCDF
+    cannot store a NUL) and messages (a newline would split the one line)."""
+    if not isinstance(value, str) or not value:
+        raise InputError(f"{field}: must be a non-empty string, got {value!r}")
+    if any(unicodedata.category(ch) == "Cc" for ch in value):
+        raise InputError(f"{field}: must not contain control characters (newline, tab, NUL, ...), "
+                         f"got {value!r}")
+
+
 def _readonly(a: np.ndarray) -> np.ndarray:
     a.setflags(write=False)
     return a
@@ -81,8 +92,7 @@ class Network:
         index: dict[str, int] = {}
         for i, leg in enumerate(self.legs):
             where = f"leg[{i}]"
-            if not isinstance(leg.id, str) or not leg.id:
-                raise InputError(f"{where}.id: must be a non-empty string, got {leg.id!r}")
+            _check_id(leg.id, f"{where}.id")
             if leg.id in index:
                 raise InputError(f"{where}.id: duplicate leg id {leg.id!r}; leg ids must be unique")
             cap = leg.capacity
@@ -97,8 +107,7 @@ class Network:
         a = np.zeros((len(self.legs), len(self.products)), dtype=np.int64)
         for j, prod in enumerate(self.products):
             where = f"product[{j}]"
-            if not isinstance(prod.id, str) or not prod.id:
-                raise InputError(f"{where}.id: must be a non-empty string, got {prod.id!r}")
+            _check_id(prod.id, f"{where}.id")
             if prod.id in seen:
                 raise InputError(f"{where}.id: duplicate product id {prod.id!r}; ids must be unique")
             seen.add(prod.id)
