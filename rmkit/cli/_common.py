@@ -48,8 +48,7 @@ class Parser(argparse.ArgumentParser):
     def error(self, message: str):  # type: ignore[override]
         # argparse says "argument --paths: ..."; rmkit names the option first, like the library
         text = message[len("argument "):] if message.startswith("argument ") else message
-        raise InputError(f"{text}; see 'rmkit {self.prog.partition(' ')[2]} --help'".replace(
-            "'rmkit  --help'", "'rmkit --help'"))
+        raise InputError(f"{text}; see '{self.prog} --help'")
 
 
 def whole_option(low: int, high: int):
