@@ -90,3 +90,13 @@ def test_compare_refuses_tables_beyond_memory_before_any_solve():
                        r"x 4 periods x capacity up to 1,000,000,000,000 x 2 legs needs about"):
         compare(net, dem, methods=["dlp", "dpd"], paths=10, seed=1, progress=said.append)
     assert said == []
+
+
+@pytest.mark.parametrize(("kwargs", "field"), [({"seed": -1}, "seed"),
+                                               ({"seed": 0, "fresh_seed": MAX_SEED + 1}, "fresh_seed")])
+def test_calibrate_checks_both_seeds_before_the_search(kwargs, field):
+    from rmkit.workflows.calibrate import calibrate
+
+    net, dem = problem()
+    with pytest.raises(InputError, match=rf"^{field}: must be a whole number in \[0, "):
+        calibrate(net, dem, "emsrb-heuristic", {"multiplier": "0.5:1.5"}, paths=10, **kwargs)
