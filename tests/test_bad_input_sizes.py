@@ -100,3 +100,15 @@ def test_calibrate_checks_both_seeds_before_the_search(kwargs, field):
     net, dem = problem()
     with pytest.raises(InputError, match=rf"^{field}: must be a whole number in \[0, "):
         calibrate(net, dem, "emsrb-heuristic", {"multiplier": "0.5:1.5"}, paths=10, **kwargs)
+
+
+@pytest.mark.parametrize(("family", "settings"), [
+    ("hub-spoke", {"spokes": 100_000, "alpha": 1.0}),
+    ("line", {"legs": 3, "alpha": 1.0, "periods": 10**10}),
+])
+def test_generators_estimate_before_building(family, settings):
+    from rmkit.model.generators import generate
+
+    with pytest.raises(ProblemTooLargeError, match=r"needs about .* of memory available; generate "
+                       r"a smaller instance"):
+        generate(family, **settings)
