@@ -4,7 +4,9 @@ from __future__ import annotations
 
 import math
 import os
+import signal
 import sys
+import threading
 import time
 import traceback
 from collections.abc import Callable
@@ -48,8 +50,6 @@ class SweepInterrupted(KeyboardInterrupt):
 
 def _start_client(scheduler: str | None, workers: int | None, dashboard: bool = False):
     import logging
-    import signal
-    import threading
 
     from distributed import Client, LocalCluster
 
@@ -173,6 +173,14 @@ def _check_workers(client) -> None:
 
 def _compute(todo, scenarios, st, report, scheduler, workers, progress, on_stored,
              dashboard=False) -> None:
+
+    with _CtrlC() as ctrl_c:
+        _compute_on(todo, scenarios, st, report, scheduler, workers, progress, on_stored,
+                    dashboard, ctrl_c)
+
+
+def _compute_on(todo, scenarios, st, report, scheduler, workers, progress, on_stored, dashboard,
+                ctrl_c: _CtrlC) -> None:
     from distributed import wait
 
     client, cluster = _start_client(scheduler, workers, dashboard)
@@ -196,6 +204,7 @@ def _compute(todo, scenarios, st, report, scheduler, workers, progress, on_store
         with _Progress(len(todo), report.resumed, enabled=progress) as bar:
             pending = dict(futures)
             while pending:
+                ctrl_c.check()
                 try:
                     wait([f for f, _ in pending.values()], timeout=0.5, return_when="FIRST_COMPLETED")
                 except TimeoutError:  # nothing finished within the poll: refresh the bar
@@ -225,6 +234,32 @@ def _compute(todo, scenarios, st, report, scheduler, workers, progress, on_store
         client.close()
         if cluster is not None:
             cluster.close()
+
+
+class _CtrlC:
+    """Ctrl-C as a flag that the poll loop turns into KeyboardInterrupt at a safe point. Raised
+    wherever the signal lands, it can fall inside a weakref callback or a dask internal, where
+    Python prints it and swallows it, and the sweep would go on."""
+
+    def __init__(self) -> None:
+        self.pressed = False
+        self._previous: Any = None
+
+    def __enter__(self) -> _CtrlC:
+        if threading.current_thread() is threading.main_thread():
+            self._previous = signal.signal(signal.SIGINT, self._press)
+        return self
+
+    def _press(self, signum: int, frame: Any) -> None:
+        self.pressed = True
+
+    def check(self) -> None:
+        if self.pressed:
+            raise KeyboardInterrupt
+
+    def __exit__(self, *exc: object) -> None:
+        if self._previous is not None:
+            signal.signal(signal.SIGINT, self._previous)
 
 
 def _collect(fut) -> dict[str, Any]:
