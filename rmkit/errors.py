@@ -23,3 +23,9 @@ class SolverError(RuntimeError):
 def param_error(owner: str, name: str, rule: str, value: object) -> InputError:
     """The one message template for a bad solver or command parameter."""
     return InputError(f"The {name!r} parameter of {owner} must be {rule}. Got {value!r} instead.")
+
+
+def quoted(ids: object) -> str:
+    """Ids for a message, each quoted (``'a', 'b'``): an id holding a newline or a comma cannot
+    break the one-line message or blur where one id ends."""
+    return ", ".join(repr(str(i)) for i in ids)  # type: ignore[attr-defined]

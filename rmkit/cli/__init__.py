@@ -11,7 +11,8 @@ import importlib
 import sys
 
 from rmkit._version import __version__
-from rmkit.errors import InputError, SolverError
+from rmkit.cli._common import Parser, join_negative_values
+from rmkit.errors import InputError, ProblemTooLargeError, SolverError
 
 #: Subcommand modules, in the order ``rmkit --help`` lists them. Each defines
 #: ``HELP``, ``add_arguments(parser)`` and ``run(args) -> int``.
@@ -20,7 +21,7 @@ COMMANDS = ("info", "bound", "bidprices", "simulate", "demo", "generate", "sweep
 
 
 def build_parser() -> argparse.ArgumentParser:
-    parser = argparse.ArgumentParser(
+    parser = Parser(
         prog="rmkit",
         description="Bid prices, bounds and booking-control simulation for network revenue "
         "management. Results are model estimates: validate them before steering real sales.",
@@ -45,18 +46,28 @@ def option_message(message: str, options: dict[str, str]) -> str:
     return message
 
 
+def error_line(err: InputError, args: argparse.Namespace | None) -> str:
+    """The one line printed for bad input: the library's field mapped to the option typed, a
+    size refusal about the scenario prefixed with its file, and never a line break."""
+    message = option_message(str(err), getattr(args, "_options", {}) or {})
+    scenario = getattr(args, "scenario", None)
+    if (isinstance(err, ProblemTooLargeError) and scenario and not message.startswith("-")
+            and not message.startswith(str(scenario))):
+        message = f"{scenario}: {message}"
+    return " ".join(message.split("\n"))
 
 
 def main(argv: list[str] | None = None) -> int:
     parser = build_parser()
-    args = parser.parse_args(argv)
-    if not getattr(args, "command", None):
-        parser.print_help()
-        return 2
+    args = None
     try:
+        args = parser.parse_args(join_negative_values(sys.argv[1:] if argv is None else argv))
+        if not getattr(args, "command", None):
+            parser.print_help()
+            return 2
         return int(args._run(args) or 0)
     except InputError as err:
-        print(f"rmkit: error: {option_message(str(err), args._options)}", file=sys.stderr)
+        print(f"rmkit: error: {error_line(err, args)}", file=sys.stderr)
         return 2
     except SolverError as err:
         print(f"rmkit: solver failed: {err}", file=sys.stderr)

@@ -10,6 +10,7 @@ from rmkit.cli._common import (
     add_params,
     add_scenario,
     add_state,
+    check_outputs,
     emit_json,
     load,
     parse_params,
@@ -35,6 +36,7 @@ def run(args: argparse.Namespace) -> int:
     from rmkit.errors import InputError
     from rmkit.methods.base import get_solver
 
+    check_outputs(args, out=(".nc",))
     scenario = load(args.scenario)
     solver = get_solver(args.method, **parse_params(args.param))
     if not solver.tags.gives_bid_prices:

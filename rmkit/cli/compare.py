@@ -7,6 +7,7 @@ import sys
 from typing import Any
 
 from rmkit.cli._common import CAUTION, add_json, add_scenario, emit_json, load
+from rmkit.cli._common import check_outputs as check_paths_first
 
 HELP = "run methods on a scenario: bounds, bid prices, simulated revenue, errors vs the optimum"
 
@@ -193,6 +194,7 @@ def print_wide(table, notes: list[str]) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
+    check_paths_first(args, out=(".nc",), plot=(".png",))
     scenario = load(args.scenario)
     check_outputs(args.out, args.plot)
     ds = run_comparison(scenario, args, quiet=args.json)

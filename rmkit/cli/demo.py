@@ -38,13 +38,14 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 def run(args: argparse.Namespace) -> int:
     from rmkit.cli._common import write_netcdf
     from rmkit.errors import InputError
-    from rmkit.files import write_atomically
+    from rmkit.files import check_output_folder, write_atomically
     from rmkit.model.scenario import load_scenario
     from rmkit.workflows.plots import comparison_figure
 
     folder = Path(args.out_dir)
     if folder.exists() and not folder.is_dir():
         raise InputError(f"--out-dir: {folder} exists and is not a folder; pick another path")
+    check_output_folder(folder, "--out-dir")
     scenario = load_scenario(example_path())
     ds = run_comparison(scenario, args, quiet=args.json)
     folder.mkdir(parents=True, exist_ok=True)

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import argparse
 
-from rmkit.cli._common import add_json, emit_json, print_table
+from rmkit.cli._common import add_json, check_outputs, emit_json, print_table
 
 HELP = "generate a hub-and-spoke or line scenario from a seed and write it as TOML"
 
@@ -52,6 +52,7 @@ def run(args: argparse.Namespace) -> int:
     from rmkit.model.families import generate
     from rmkit.model.scenario import save_scenario
 
+    check_outputs(args, out=(".toml",))
     if not str(args.out).lower().endswith(".toml"):
         raise InputError(f"--out: {args.out!r} should end in .toml")
     common = {"alpha": args.alpha, "periods": args.periods, "arrival": args.arrival,

@@ -9,6 +9,7 @@ from rmkit.cli._common import (
     add_json,
     add_params,
     add_scenario,
+    check_outputs,
     emit_json,
     fmt,
     load,
@@ -48,6 +49,7 @@ def run(args: argparse.Namespace) -> int:
     from rmkit.errors import InputError
     from rmkit.workflows.simulate import simulate
 
+    check_outputs(args, out=(".nc",))
     scenario = load(args.scenario)
     if args.out is not None and not str(args.out).lower().endswith(".nc"):
         raise InputError(f"--out: {args.out!r} should end in .nc")

@@ -36,6 +36,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--retry-failed", action="store_true",
                         help="recompute cells stored with an error")
     parser.add_argument("--no-progress", action="store_true", help="no progress bar")
+    parser.add_argument("--dashboard", action="store_true",
+                        help="serve the local cluster's dask dashboard on 127.0.0.1 (an "
+                        "unauthenticated page; off by default)")
     add_json(parser)
 
 
@@ -81,7 +84,7 @@ def run(args: argparse.Namespace) -> int:
     store = Path(args.out) if args.out else default_store(args.grid)
     try:
         report = run_sweep(grid, store, scheduler=args.scheduler, workers=args.workers,
-                           retry_failed=args.retry_failed,
+                           retry_failed=args.retry_failed, dashboard=args.dashboard,
                            progress=not (args.no_progress or args.json))
     except SweepInterrupted as stop:
         print(f"rmkit: interrupted: {stop.stored} of {stop.report.total} cells are stored in "

@@ -21,7 +21,8 @@ from typing import Any, ClassVar
 
 import numpy as np
 
-from rmkit.errors import InputError, param_error
+from rmkit.errors import InputError, ProblemTooLargeError, param_error
+from rmkit.limits import check_seed, memory_refusal
 from rmkit.model.demand import DemandModel, check_compatible
 from rmkit.model.network import Network
 from rmkit.results import BookingState, SolveResult, StatePolicy, Timer
@@ -164,6 +165,11 @@ class Solver:
         out.update(self._settings)
         return out
 
+    def check_params(self) -> dict[str, Any]:
+        """Every setting checked against its rule (:class:`InputError` naming the first bad one),
+        defaults filled in: callers check settings before any work starts."""
+        return self._checked_params()
+
     def _checked_params(self) -> dict[str, Any]:
         out = self.get_params()
         for key, value in out.items():
@@ -180,6 +186,27 @@ class Solver:
         """``None`` when the method can run on this problem, else the reason it cannot."""
         return None
 
+    def memory_bytes(self, network: Network, demand: DemandModel) -> int:
+        """Bytes the method's largest arrays take, estimated from the sizes before allocating.
+
+        The default reads the tags: a method with bid prices by seats left holds a few
+        ``(periods, max capacity + 1, legs)`` tables; a nested-limit method (and any method
+        that computes seat values) a few ``(legs, max capacity + 1)`` rows per period of the
+        booking curve it reads. Methods that know better override it.
+        """
+        seats = network.n_legs * (network.max_capacity + 1)
+        if self.tags.capacity_dependent:
+            return 3 * 8 * (demand.n_periods + 1) * seats
+        if self.tags.control == "nested" or self.tags.needs_displacement:
+            return 4 * 8 * seats
+        return 8 * demand.n_periods * (network.n_products + network.n_legs)
+
+    def memory_reason(self, network: Network, demand: DemandModel) -> str | None:
+        """Why the method's arrays would not fit in the memory available, else ``None``."""
+        return memory_refusal(self.memory_bytes(network, demand),
+                              f"{self.name} over {demand.n_periods:,} periods x {network.n_legs} "
+                              f"legs x capacity up to {network.max_capacity:,}")
+
     def kind_refusal(self, demand: DemandModel) -> str | None:
         """``None`` when the method solves ``demand``'s kind, else the one-line reason."""
         if demand.kind in self.demand_kinds:
@@ -192,8 +219,10 @@ class Solver:
         return reason
 
     def refusal_reason(self, network: Network, demand: DemandModel) -> str | None:
-        """Why the method cannot run on this problem (its demand kind first), else ``None``."""
-        return self.kind_refusal(demand) or self.accepts(network, demand)
+        """Why the method cannot run on this problem (its demand kind first, then its size), else
+        ``None``."""
+        return (self.kind_refusal(demand) or self.accepts(network, demand)
+                or self.memory_reason(network, demand))
 
     def marginal_values(self, network: Network, demand: DemandModel, periods: np.ndarray,
                         states: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -267,9 +296,15 @@ class Solver:
         reason = self.accepts(network, demand)
         if reason is not None:
             raise self.refusal(f"{self.name}: cannot run on this problem: {reason}")
+        size = self.memory_reason(network, demand)
+        if size is not None:
+            raise ProblemTooLargeError(f"{self.name}: cannot run on this problem: {size}; use a "
+                                       "method without seat-by-seat tables (dlp, rlp, pnlp)")
 
     def _problem(self, network: Network, demand: DemandModel, state: BookingState | None,
                  seed: int | None) -> tuple[Problem, int | None]:
+        if seed is not None:
+            seed = check_seed(seed)
         period, capacity = (state or BookingState()).resolve(network, demand.n_periods)
         if seed is None and self.tags.stochastic:
             seed = 0

@@ -186,6 +186,7 @@ class DemandModel(metaclass=_DemandMeta):
 
         if isinstance(n_paths, bool) or not isinstance(n_paths, (int, np.integer)) or n_paths < 1:
             raise InputError(f"paths: must be a whole number >= 1, got {n_paths!r}")
+        self.check_sample_size(n_paths)
         rng = np.random.Generator(np.random.PCG64(seed))
         u = rng.random((int(n_paths), self.n_periods))
         cum = np.cumsum(self.arrival_probabilities(), axis=1)
@@ -193,6 +194,16 @@ class DemandModel(metaclass=_DemandMeta):
         uniform = np.empty(u.shape if self.needs_purchase_number else (0, 0))
         draw_arrivals(u, cum, customer, uniform)
         return Arrivals(customer, uniform)
+
+    def check_sample_size(self, n_paths: int, field: str = "paths") -> None:
+        """Refuse (:class:`rmkit.errors.ProblemTooLargeError`) before drawing ``n_paths`` paths
+        whose arrays would not fit in the memory available."""
+        from rmkit.limits import check_memory
+
+        # the uniform draws, the customers and (some kinds) the purchase numbers, per path
+        per_path = self.n_periods * (8 + 4 + 8 * self.needs_purchase_number)
+        check_memory(int(n_paths) * per_path, f"{n_paths:,} paths x {self.n_periods:,} periods",
+                     field, advice="use fewer paths and combine runs with different seeds")
 
     @abc.abstractmethod
     def kernel_data(self) -> NamedTuple:

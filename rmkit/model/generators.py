@@ -128,6 +128,15 @@ def capacities_for_load_factor(
     return caps, probabilities * scale
 
 
+def _check_size(owner: str, field: str, n_legs: int, n_products: int, n_periods: int) -> None:
+    """Refuse before building an instance whose incidence and request tables would not fit."""
+    from rmkit.limits import check_memory
+
+    check_memory(8 * (n_legs * n_products + 3 * n_periods * n_products),
+                 f"{n_legs:,} legs x {n_products:,} products x {n_periods:,} periods",
+                 f"{owner}: {field}", advice="generate a smaller instance")
+
+
 def _fares_and_rng(owner: str, fares: Any, seed: Any) -> tuple[tuple[int, int], int, np.random.Generator]:
     seed = _whole(owner, "seed", seed, 0)
     return _fare_range(owner, fares), seed, np.random.Generator(np.random.PCG64(seed))
@@ -202,6 +211,7 @@ def hub_spoke_start(owner: str, spokes: Any, alpha: Any, kappa: Any, periods: An
     alpha = _positive(owner, "alpha", alpha)
     kappa = _positive(owner, "kappa", kappa, 1.0, strict=False)
     t_count = _whole(owner, "periods", periods, 2)
+    _check_size(owner, "spokes, periods", 2 * n, 2 * n * (n + 1), t_count)
     arrival = _positive(owner, "arrival", arrival)
     if arrival > 1.0:
         raise param_error(owner, "arrival", "a request probability in (0, 1]", arrival)
@@ -305,6 +315,7 @@ def line_network(
     m = _whole(owner, "classes", classes, 1)
     ratio = _positive(owner, "ratio", ratio, 1.0, strict=False)
     t_count = _whole(owner, "periods", periods, 1)
+    _check_size(owner, "legs, classes, periods", k, k * (k + 1) // 2 * m, t_count)
     arrival = _positive(owner, "arrival", arrival)
     taper = _positive(owner, "taper", taper)
     if taper > 1.0:

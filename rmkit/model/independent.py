@@ -27,12 +27,13 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from typing import TYPE_CHECKING, Any, ClassVar, NamedTuple
+from typing import TYPE_CHECKING, Annotated, Any, ClassVar, NamedTuple
 
 import numpy as np
-from pydantic import BaseModel, ConfigDict
+from pydantic import BaseModel, ConfigDict, Field
 
-from rmkit.errors import InputError
+from rmkit.errors import InputError, quoted
+from rmkit.limits import MAX_COUNT, check_memory
 from rmkit.model.demand import (
     ROW_SUM_SLACK,
     DemandModel,
@@ -242,11 +243,11 @@ class CurveSpec(_Strict):
 class RequestSpec(_Strict):
     period: int
     product: str
-    probability: float
+    probability: Annotated[float, Field(ge=0.0, le=1.0, allow_inf_nan=False)]
 
 
 class IndependentSpec(_Strict):
-    periods: int
+    periods: Annotated[int, Field(ge=1, le=MAX_COUNT)]
     curve: list[CurveSpec] | None = None
     probabilities: list[list[float]] | None = None
     request: list[RequestSpec] | None = None
@@ -260,13 +261,12 @@ def _demand_from_spec(d: IndependentSpec, network: Network) -> IndependentDemand
             "demand: give exactly one of [[demand.curve]], demand.probabilities or "
             f"[[demand.request]]; got {', '.join(given) or 'none'}"
         )
-    if d.periods < 1:
-        raise InputError(f"demand.periods: must be >= 1, got {d.periods}")
+    check_table_size(d.periods, n)
     ids = {pid: j for j, pid in enumerate(network.product_ids)}
 
     def product_index(where: str, pid: str) -> int:
         if pid not in ids:
-            raise InputError(f"{where}.product: unknown product {pid!r}; known: {', '.join(ids)}")
+            raise InputError(f"{where}.product: unknown product {pid!r}; known: {quoted(ids)}")
         return ids[pid]
 
     if d.curve is not None:
@@ -299,6 +299,7 @@ def _demand_from_spec(d: IndependentSpec, network: Network) -> IndependentDemand
                 )
         return IndependentDemand(np.array(rows, dtype=np.float64))
     p = np.zeros((d.periods, n))
+    first: dict[tuple[int, int], int] = {}
     for k, r in enumerate(d.request or []):
         if not 0 <= r.period < d.periods:
             raise InputError(
@@ -306,9 +307,23 @@ def _demand_from_spec(d: IndependentSpec, network: Network) -> IndependentDemand
                 f"got {r.period}"
             )
         j = product_index(f"demand.request[{k}]", r.product)
-        p[r.period, j] += r.probability
+        if (r.period, j) in first:  # summing would hide a typo (or a negative correction)
+            raise InputError(
+                f"demand.request[{k}]: period {r.period}, product {r.product!r} is already given "
+                f"by demand.request[{first[r.period, j]}]; give each (period, product) once"
+            )
+        first[r.period, j] = k
+        p[r.period, j] = r.probability
     check_probability_table(p, "demand.request")
     return IndependentDemand(p)
+
+
+def check_table_size(n_periods: int, n_products: int, field: str = "demand.periods") -> None:
+    """Refuse, before allocating, a request table the machine cannot hold (the table, its
+    demand-to-come sums and a working copy: three ``(T, n)`` float64 arrays)."""
+    check_memory(3 * 8 * n_periods * max(n_products, 1),
+                 f"{n_periods:,} periods x {n_products} products", field,
+                 advice="use fewer periods")
 
 
 # -------------------------------------------------------------------- booking curves

@@ -16,12 +16,14 @@ needs one seat on leg i. Every solver in rmkit reads the network only through th
 from __future__ import annotations
 
 import math
+import unicodedata
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
 
 import numpy as np
 
-from rmkit.errors import InputError
+from rmkit.errors import InputError, quoted
+from rmkit.limits import MAX_COUNT, MAX_FARE
 
 
 @dataclass(frozen=True)
@@ -56,6 +58,16 @@ def grid_strides(capacities: np.ndarray) -> np.ndarray:
     return strides
 
 
+def _check_id(value: object, field: str) -> None:
+    """Ids are non-empty text without control characters: they label result files (NetCDF
+    cannot store a NUL) and messages (a newline would split the one line)."""
+    if not isinstance(value, str) or not value:
+        raise InputError(f"{field}: must be a non-empty string, got {value!r}")
+    if any(unicodedata.category(ch) == "Cc" for ch in value):
+        raise InputError(f"{field}: must not contain control characters (newline, tab, NUL, ...), "
+                         f"got {value!r}")
+
+
 def _readonly(a: np.ndarray) -> np.ndarray:
     a.setflags(write=False)
     return a
@@ -80,14 +92,14 @@ class Network:
         index: dict[str, int] = {}
         for i, leg in enumerate(self.legs):
             where = f"leg[{i}]"
-            if not isinstance(leg.id, str) or not leg.id:
-                raise InputError(f"{where}.id: must be a non-empty string, got {leg.id!r}")
+            _check_id(leg.id, f"{where}.id")
             if leg.id in index:
                 raise InputError(f"{where}.id: duplicate leg id {leg.id!r}; leg ids must be unique")
             cap = leg.capacity
-            if isinstance(cap, bool) or not isinstance(cap, (int, np.integer)) or cap < 0:
+            if (isinstance(cap, bool) or not isinstance(cap, (int, np.integer))
+                    or not 0 <= cap <= MAX_COUNT):
                 raise InputError(
-                    f"{where}.capacity: must be a whole number >= 0, got {cap!r} "
+                    f"{where}.capacity: must be a whole number in [0, {MAX_COUNT}], got {cap!r} "
                     f"(leg {leg.id!r}); give a non-negative integer seat count"
                 )
             index[leg.id] = i
@@ -95,8 +107,7 @@ class Network:
         a = np.zeros((len(self.legs), len(self.products)), dtype=np.int64)
         for j, prod in enumerate(self.products):
             where = f"product[{j}]"
-            if not isinstance(prod.id, str) or not prod.id:
-                raise InputError(f"{where}.id: must be a non-empty string, got {prod.id!r}")
+            _check_id(prod.id, f"{where}.id")
             if prod.id in seen:
                 raise InputError(f"{where}.id: duplicate product id {prod.id!r}; ids must be unique")
             seen.add(prod.id)
@@ -105,10 +116,10 @@ class Network:
                 isinstance(fare, bool)
                 or not isinstance(fare, (int, float, np.floating, np.integer))
                 or not math.isfinite(float(fare))
-                or float(fare) <= 0
+                or not 0 < float(fare) <= MAX_FARE
             ):
                 raise InputError(
-                    f"{where}.fare: must be a finite number > 0, got {fare!r} "
+                    f"{where}.fare: must be a finite number > 0 and <= {MAX_FARE:g}, got {fare!r} "
                     f"(product {prod.id!r}); give a positive fare"
                 )
             if not prod.legs:
@@ -117,7 +128,7 @@ class Network:
                 if leg_id not in index:
                     raise InputError(
                         f"{where}.legs: product {prod.id!r} uses unknown leg {leg_id!r}; "
-                        f"known legs: {', '.join(index)}"
+                        f"known legs: {quoted(index)}"
                     )
                 if a[index[leg_id], j]:
                     raise InputError(
@@ -170,7 +181,7 @@ class Network:
         for i, leg in enumerate(self.legs):
             if leg.id == leg_id:
                 return i
-        raise InputError(f"leg: unknown leg id {leg_id!r}; known legs: {', '.join(self.leg_ids)}")
+        raise InputError(f"leg: unknown leg id {leg_id!r}; legs are {quoted(self.leg_ids)}")
 
     def product_legs(self, j: int) -> np.ndarray:
         """Indices of the legs product ``j`` uses."""

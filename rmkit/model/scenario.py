@@ -24,11 +24,12 @@ from __future__ import annotations
 import tomllib
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any
+from typing import Annotated, Any
 
-from pydantic import BaseModel, ConfigDict, ValidationError
+from pydantic import BaseModel, ConfigDict, Field, ValidationError
 
 from rmkit.errors import InputError
+from rmkit.limits import MAX_COUNT, MAX_SEED
 from rmkit.model.demand import DemandModel, check_compatible, demand_kinds
 from rmkit.model.network import Leg, Network, Product
 from rmkit.model.spec_errors import pydantic_message
@@ -43,15 +44,21 @@ class ScenarioInfo(_Strict):
     description: str = ""
 
 
+#: Whole numbers in a range (pydantic checks them; spec_errors words the message).
+Seed = Annotated[int, Field(ge=0, le=MAX_SEED)]
+Count = Annotated[int, Field(ge=0, le=MAX_COUNT)]
+PositiveCount = Annotated[int, Field(ge=1, le=MAX_COUNT)]
+
+
 class Defaults(_Strict):
-    seed: int | None = None
-    paths: int | None = None
-    resolve: int | None = None
+    seed: Seed | None = None
+    paths: PositiveCount | None = None
+    resolve: Count | None = None
 
 
 class LegSpec(_Strict):
     id: str
-    capacity: int
+    capacity: Count
     name: str = ""
 
 
@@ -146,7 +153,15 @@ def scenario_from_dict(data: dict[str, Any], source: str = "") -> Scenario:
     network = network_from_spec(spec)
     demand = demand_from_spec(spec, network)
     check_compatible(network, demand)
+    check_defaults(spec.defaults, demand.n_periods)
     return Scenario(network=network, demand=demand, spec=spec, source=source)
+
+
+def check_defaults(defaults: Defaults, n_periods: int) -> None:
+    """Rules of ``[defaults]`` that need the demand: at most one re-solve per period."""
+    if defaults.resolve is not None and defaults.resolve > n_periods:
+        raise InputError(f"defaults.resolve: must be at most the number of periods ({n_periods}), "
+                         f"got {defaults.resolve}")
 
 
 # ------------------------------------------------------------------ files
@@ -156,24 +171,20 @@ def _prefixed(path: Path, err: InputError) -> InputError:
 
 def load_scenario(path: str | Path) -> Scenario:
     """Read a scenario TOML or a hub-and-spoke benchmark file (``.txt`` / ``.txt.gz``)."""
-    p = Path(path)
-    if not p.exists():
-        raise InputError(f"{p}: no such file; give the path of a scenario .toml or benchmark .txt")
-    if p.is_dir():
-        raise InputError(f"{p}: is a folder; give the path of a scenario file")
-    name = p.name.lower()
+    from rmkit.files import check_input, read_text
+
+    p = check_input(path, "scenario .toml or benchmark .txt")
     try:
-        if name.endswith((".txt", ".txt.gz")):
+        if p.name.lower().endswith((".txt", ".txt.gz")):
             from rmkit.model.hub_spoke import read_hub_spoke
 
             network, demand = read_hub_spoke(p)
             return scenario_from_model(network, demand, network.name, source=str(p))
+        text = read_text(p, "scenario .toml")
         try:
-            data = tomllib.loads(p.read_text(encoding="utf-8"))
+            data = tomllib.loads(text)
         except tomllib.TOMLDecodeError as err:
             raise InputError(f"malformed TOML: {err}; fix the syntax at that line") from None
-        except UnicodeDecodeError:
-            raise InputError("not a UTF-8 text file; give a scenario .toml") from None
         return scenario_from_dict(data, source=str(p))
     except InputError as err:
         raise _prefixed(p, err) from None

@@ -40,7 +40,12 @@ def pydantic_message(err: ValidationError, root: type[BaseModel],
         valid = ", ".join(model.model_fields) if model else "see the README"
         where = location(prefix + parent) or "top level"
         return f"{where}: unknown field {name!r}; valid fields: {valid}"
-    rule = _FIELD_HELP.get(kind, first["msg"])
+    ctx = first.get("ctx") or {}
+    bounds = {"greater_than_equal": f"must be >= {ctx.get('ge')}",
+              "less_than_equal": f"must be <= {ctx.get('le')}",
+              "greater_than": f"must be > {ctx.get('gt')}",
+              "less_than": f"must be < {ctx.get('lt')}"}
+    rule = bounds.get(kind) or _FIELD_HELP.get(kind, first["msg"])
     got = first.get("input")
     where = location(prefix + loc)
     return f"{where}: {rule}, got {got!r}" if kind != "missing" else f"{where}: {rule}"

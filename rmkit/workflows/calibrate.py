@@ -339,6 +339,7 @@ def calibrate(
         The search along ``setting`` (see :meth:`Calibration.to_dataset`);
         :func:`calibration_report` turns it into the command's JSON.
     """
+    from rmkit.limits import MAX_SEED, check_seed
     from rmkit.methods.base import get_solver, positive_int
 
     check_compatible(network, demand)
@@ -348,6 +349,10 @@ def calibrate(
                          "pick a method with bid prices, booking limits or decisions")
     if not positive_int(paths):
         raise InputError(f"paths: must be a whole number >= 1, got {paths!r}")
+    seed = check_seed(seed, "seed")
+    # the fresh paths' seed, checked now rather than after the search (wraps past the range)
+    fresh = (seed + 1) % (MAX_SEED + 1) if fresh_seed is None else check_seed(fresh_seed,
+                                                                               "fresh_seed")
     if not ranges:
         raise InputError(f"ranges: give at least one setting to tune; valid for {heuristic}: "
                          f"{', '.join(tunable_names(solver))}")
@@ -378,7 +383,6 @@ def calibrate(
         if best is None or ev.mean > best.mean:
             best = ev
     assert best is not None
-    fresh = seed + 1 if fresh_seed is None else int(fresh_seed)
     ref = solve_reference(network, demand, seed) if reference else Reference.none()
     found = Calibration(
         heuristic=heuristic, paths=int(paths), seed=int(seed), fresh_seed=fresh,

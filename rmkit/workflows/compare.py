@@ -149,9 +149,13 @@ def run_methods(
             f"settings: given for {unknown[0]!r}, which is not among the methods compared "
             f"({', '.join(names)})"
         )
+    # a bad setting is the user's error: refuse it before any method runs
+    solvers = {name: get_solver(name, **dict(settings.get(name, {}))) for name in names}
+    for solver in solvers.values():
+        solver.check_params()
     runs = []
     for name in names:
-        solver = get_solver(name, **dict(settings.get(name, {})))
+        solver = solvers[name]
         run = MethodRun(name=name, kind=kind_of(solver), status="ran", solver=solver)
         reason = solver.refusal_reason(network, demand)
         if reason is not None:
@@ -434,12 +438,13 @@ def compare(
         variables are listed in :data:`VARIABLES`. Attrs: scenario, seed, paths, resolve,
         parameters of every method (JSON), reference, best policy, rmkit version.
     """
+    from rmkit.limits import MAX_SEED, whole_rule
     from rmkit.methods.base import non_negative_int, positive_int
 
     check_compatible(network, demand)
     for name, value, rule, ok in (
         ("paths", paths, "a whole number >= 1", positive_int),
-        ("seed", seed, "a whole number >= 0", non_negative_int),
+        ("seed", seed, whole_rule(0, MAX_SEED), lambda v: non_negative_int(v) and v <= MAX_SEED),
         ("resolve", resolve, "a whole number >= 0", non_negative_int),
         ("visit_paths", visit_paths, "a whole number >= 1", positive_int),
     ):
@@ -447,7 +452,9 @@ def compare(
             from rmkit.errors import param_error
 
             raise param_error("compare", name, rule, value)
+    demand.check_sample_size(paths)  # before any solve: the paths must fit in memory
     names = select_methods(methods)
+    _check_table_size(network, demand, len(names))
     runs = run_methods(network, demand, names, seed=seed, settings=settings, progress=progress)
     for run in runs:
         if run.result is not None:
@@ -552,6 +559,18 @@ VARIABLES = (
     "difference_mean", "difference_stderr", "difference_ci_low", "difference_ci_high",
     "gap_percent", *ERROR_NAMES, "load_factor_mean", "solve_seconds", "simulate_seconds",
 )
+
+
+def _check_table_size(network: Network, demand: DemandModel, n_methods: int) -> None:
+    """Refuse before any solve a comparison whose bid-price tables (one per method, by period and
+    seats left, plus the stacked copy) would not fit in memory."""
+    from rmkit.limits import check_memory
+
+    cells = demand.n_periods * (network.max_capacity + 1) * network.n_legs
+    check_memory(2 * 8 * n_methods * cells,
+                 f"the bid-price tables of {n_methods} methods x {demand.n_periods:,} periods x "
+                 f"capacity up to {network.max_capacity:,} x {network.n_legs} legs", "capacity",
+                 advice="compare on a network with fewer seats per leg")
 
 
 def _method_dataset(frame: _Frame, run: MethodRun, best: MethodRun | None, ref: float):

@@ -55,6 +55,7 @@ import numpy as np
 
 from rmkit._version import __version__
 from rmkit.errors import InputError, ProblemTooLargeError
+from rmkit.limits import MAX_SEED, memory_refusal, whole_rule
 from rmkit.model.demand import Arrivals, DemandModel, check_compatible
 from rmkit.model.network import Network, grid_strides
 from rmkit.workflows.policies import PolicySource, make_policy
@@ -301,8 +302,8 @@ def _check_run(
     check_compatible(network, demand)
     if not positive_int(paths):
         raise param_error("simulate", "paths", "a whole number >= 1", paths)
-    if not non_negative_int(seed):
-        raise param_error("simulate", "seed", "a whole number >= 0", seed)
+    if not non_negative_int(seed) or seed > MAX_SEED:
+        raise param_error("simulate", "seed", whole_rule(0, MAX_SEED), seed)
     if not non_negative_int(resolve):
         raise param_error("simulate", "resolve", "a whole number >= 0", resolve)
     if resolve > demand.n_periods:
@@ -311,12 +312,11 @@ def _check_run(
         )
     per_path = demand.n_periods * 4 + 8 * (3 * network.n_products + 4 * network.n_legs + 2)
     need = int(paths) * per_path * 2  # streams and books, plus the draw's uniform numbers
-    if need > max_bytes:
+    reason = memory_refusal(need, f"{paths:,} paths x {demand.n_periods:,} periods", max_bytes)
+    if reason is not None:
         raise ProblemTooLargeError(
-            f"paths: {paths} paths x {demand.n_periods} periods need about {need / 2**30:.1f} "
-            f"GiB, above the {max_bytes / 2**30:.1f} GiB limit; use at most "
-            f"{max(1, max_bytes // (2 * per_path))} paths per run and combine runs with different "
-            "seeds"
+            f"paths: {reason}; use at most {max(1, max_bytes // (2 * per_path)):,} paths per run "
+            "and combine runs with different seeds"
         )
 
 

@@ -38,6 +38,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from rmkit import limits
 from rmkit.errors import InputError, ProblemTooLargeError
 from rmkit.model.demand import DemandModel, check_compatible
 from rmkit.model.network import Network, grid_strides
@@ -216,7 +217,14 @@ def too_large_reason(
     """``None`` when the DP fits in ``max_memory_gb``, else why not (with the figures)."""
     est = estimate(network, n_periods, keep_decisions, n_probe)
     if est.gigabytes <= max_memory_gb:
-        return None
+        free = limits.available_memory()  # the limit may be set above what the machine has
+        if free is None or est.bytes <= limits.AVAILABLE_SHARE * free:
+            return None
+        return (
+            f"the exact network DP over {est.describe()}, above the {limits.gib(free)} of memory "
+            f"available (limit max_memory_gb = {max_memory_gb:g} GiB); use a decomposition "
+            "method instead (dpd, lr)"
+        )
     return (
         f"the exact network DP over {est.describe()}, above the limit of {max_memory_gb:g} GiB "
         "(parameter max_memory_gb); use a decomposition method instead (dpd, lr)"

@@ -16,6 +16,7 @@ from typing import Any
 from pydantic import BaseModel, ConfigDict, ValidationError
 
 from rmkit.errors import InputError
+from rmkit.limits import MAX_SEED
 
 
 class _Strict(BaseModel):
@@ -209,7 +210,18 @@ def grid_from_dict(data: dict[str, Any], folder: str | Path = ".") -> Grid:
     except ValidationError as err:
         raise _grid_error(err) from None
     seeds = spec.sweep.seeds
-    seeds = list(range(seeds)) if isinstance(seeds, int) else list(seeds)
+    if isinstance(seeds, int):
+        from rmkit.limits import check_memory
+
+        # every cell is an object in memory and a file in the store: refuse a count before
+        # expanding it (about a kilobyte per seed and cell)
+        check_memory(1024 * max(seeds, 0), f"{seeds:,} seeds", "grid sweep.seeds")
+        seeds = list(range(seeds))
+    else:
+        seeds = list(seeds)
+    if any(s > MAX_SEED for s in seeds):
+        raise InputError(f"grid sweep.seeds: seeds must be whole numbers in [0, {MAX_SEED}], got "
+                         f"{max(seeds)}")
     if not seeds or any(s < 0 for s in seeds):
         raise InputError(f"grid sweep.seeds: give a count >= 1 or whole numbers >= 0, got {seeds!r}")
     if len(set(seeds)) != len(seeds):
@@ -224,11 +236,13 @@ def grid_from_dict(data: dict[str, Any], folder: str | Path = ".") -> Grid:
 
 def load_grid(path: str | Path) -> Grid:
     """Read and expand a grid file (see the module docstring for its layout)."""
-    p = Path(path)
-    if not p.is_file():
-        raise InputError(f"{p}: no such grid file; give the path of a sweep grid .toml")
+    from rmkit.files import check_input, read_text
+
+    p = check_input(path, "sweep grid .toml")
     try:
-        data = tomllib.loads(p.read_text(encoding="utf-8"))
+        data = tomllib.loads(read_text(p, "sweep grid .toml"))
+    except InputError as err:
+        raise InputError(f"{p}: {err}") from None
     except tomllib.TOMLDecodeError as err:
         raise InputError(f"{p}: malformed TOML: {err}") from None
     grid = grid_from_dict(data, p.resolve().parent)

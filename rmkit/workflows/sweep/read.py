@@ -8,8 +8,9 @@ from typing import Any
 
 import numpy as np
 
+from rmkit.errors import InputError
 from rmkit.files import write_atomically
-from rmkit.workflows.sweep.store import Store, read_cell
+from rmkit.workflows.sweep.store import CorruptCell, Store
 
 
 def open_sweep(store: str | Path, *, paths: bool = False):
@@ -43,7 +44,11 @@ def open_sweep(store: str | Path, *, paths: bool = False):
         cid = next(ids)
         if cid not in stored:
             continue
-        rec = read_cell(st.cell_path(cid))
+        try:
+            rec = st.read(cid)
+        except CorruptCell as bad:
+            raise InputError(f"store: {st.cell_path(cid)}: {bad.why}; run 'rmkit sweep' on the "
+                             "grid again to set it aside and compute the cell anew") from None
         for k in num:
             num[k][idx] = rec[k]
         status[idx] = str(rec["status"])

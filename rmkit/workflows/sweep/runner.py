@@ -4,6 +4,9 @@ from __future__ import annotations
 
 import math
 import os
+import signal
+import sys
+import threading
 import time
 import traceback
 from collections.abc import Callable
@@ -31,6 +34,8 @@ class SweepReport:
     interrupted: bool = False
     cell_ids: tuple[str, ...] = ()
     failures: list[tuple[str, str, int, str]] = field(default_factory=list)
+    corrupt: list[str] = field(default_factory=list)  # cell files set aside and recomputed
+    dashboard: str = ""  # link of the local cluster's dashboard, when asked for
 
 
 class SweepInterrupted(KeyboardInterrupt):
@@ -43,7 +48,7 @@ class SweepInterrupted(KeyboardInterrupt):
                          f"{report.store}")
 
 
-def _start_client(scheduler: str | None, workers: int | None):
+def _start_client(scheduler: str | None, workers: int | None, dashboard: bool = False):
     import logging
 
     from distributed import Client, LocalCluster
@@ -59,10 +64,20 @@ def _start_client(scheduler: str | None, workers: int | None):
     n = workers or os.cpu_count() or 1
     if n < 1:
         raise InputError(f"workers: must be >= 1, got {n}")
-    cluster = LocalCluster(
-        n_workers=n, threads_per_worker=1, processes=True, dashboard_address=":0",
-        silence_logs=logging.ERROR,
-    )
+    # Worker processes inherit an ignored SIGINT, so Ctrl-C in the terminal (sent to the whole
+    # process group) stops only this process, which closes the cluster and prints one line.
+    main = threading.current_thread() is threading.main_thread()
+    previous = signal.signal(signal.SIGINT, signal.SIG_IGN) if main else None
+    try:
+        cluster = LocalCluster(
+            n_workers=n, threads_per_worker=1, processes=True, host="127.0.0.1",
+            # the dashboard is an unauthenticated page: only on request, and only on this machine
+            dashboard_address="127.0.0.1:0", scheduler_kwargs={"dashboard": dashboard},
+            silence_logs=logging.ERROR,
+        )
+    finally:
+        if main:
+            signal.signal(signal.SIGINT, previous)
     return Client(cluster), cluster
 
 
@@ -75,6 +90,7 @@ def run_sweep(
     retry_failed: bool = False,
     progress: bool = True,
     on_stored: Callable[[Cell, dict[str, Any]], None] | None = None,
+    dashboard: bool = False,
 ) -> SweepReport:
     """Compute every cell of ``grid`` not yet in ``store``, writing each as soon as it finishes.
 
@@ -88,19 +104,29 @@ def run_sweep(
         Recompute cells stored with status ``error`` (default: keep their recorded error).
     on_stored
         Called in the client after each cell is written (progress hooks, tests).
+    dashboard
+        Serve the local cluster's dask dashboard on 127.0.0.1 (an unauthenticated page; off by
+        default); its link is in the report and printed.
+
+    A stored cell file that cannot be trusted (unreadable, or another cell's) is set aside as
+    ``<id>.nc.corrupt``, named on one line on stderr, and its cell computed again.
     """
     started = time.perf_counter()
     cells, scenarios = expand_cells(grid)
     st = Store(store)
     st.create(grid, cells)
+    corrupt = st.set_aside_bad(cells)
+    if corrupt:
+        print(f"rmkit sweep: {len(corrupt)} unreadable or misplaced cell file(s) set aside as "
+              f".corrupt in {st.cells} and computed again: {', '.join(corrupt)}", file=sys.stderr)
     st.reconcile(cells)
     statuses = st.statuses()
     todo = [c for c in cells if c.cell_id not in statuses
             or (retry_failed and statuses[c.cell_id] == "error")]
     report = SweepReport(store=st.root, total=len(cells), resumed=len(cells) - len(todo),
-                         cell_ids=tuple(c.cell_id for c in cells))
+                         cell_ids=tuple(c.cell_id for c in cells), corrupt=corrupt)
     if todo:
-        _compute(todo, scenarios, st, report, scheduler, workers, progress, on_stored)
+        _compute(todo, scenarios, st, report, scheduler, workers, progress, on_stored, dashboard)
     if not report.interrupted:
         write_combined(st.root)
     report.seconds = time.perf_counter() - started
@@ -145,11 +171,24 @@ def _check_workers(client) -> None:
                       "results may differ from a local run", stacklevel=3)
 
 
-def _compute(todo, scenarios, st, report, scheduler, workers, progress, on_stored) -> None:
+def _compute(todo, scenarios, st, report, scheduler, workers, progress, on_stored,
+             dashboard=False) -> None:
+
+    with _CtrlC() as ctrl_c:
+        _compute_on(todo, scenarios, st, report, scheduler, workers, progress, on_stored,
+                    dashboard, ctrl_c)
+
+
+def _compute_on(todo, scenarios, st, report, scheduler, workers, progress, on_stored, dashboard,
+                ctrl_c: _CtrlC) -> None:
     from distributed import wait
 
-    client, cluster = _start_client(scheduler, workers)
+    client, cluster = _start_client(scheduler, workers, dashboard)
     futures = {}
+    if cluster is not None and dashboard:
+        report.dashboard = str(cluster.dashboard_link)
+        print(f"rmkit sweep: dashboard (unauthenticated, this machine only) at {report.dashboard}",
+              file=sys.stderr)
     try:
         _check_workers(client)
         held = {}
@@ -165,6 +204,7 @@ def _compute(todo, scenarios, st, report, scheduler, workers, progress, on_store
         with _Progress(len(todo), report.resumed, enabled=progress) as bar:
             pending = dict(futures)
             while pending:
+                ctrl_c.check()
                 try:
                     wait([f for f, _ in pending.values()], timeout=0.5, return_when="FIRST_COMPLETED")
                 except TimeoutError:  # nothing finished within the poll: refresh the bar
@@ -194,6 +234,32 @@ def _compute(todo, scenarios, st, report, scheduler, workers, progress, on_store
         client.close()
         if cluster is not None:
             cluster.close()
+
+
+class _CtrlC:
+    """Ctrl-C as a flag that the poll loop turns into KeyboardInterrupt at a safe point. Raised
+    wherever the signal lands, it can fall inside a weakref callback or a dask internal, where
+    Python prints it and swallows it, and the sweep would go on."""
+
+    def __init__(self) -> None:
+        self.pressed = False
+        self._previous: Any = None
+
+    def __enter__(self) -> _CtrlC:
+        if threading.current_thread() is threading.main_thread():
+            self._previous = signal.signal(signal.SIGINT, self._press)
+        return self
+
+    def _press(self, signum: int, frame: Any) -> None:
+        self.pressed = True
+
+    def check(self) -> None:
+        if self.pressed:
+            raise KeyboardInterrupt
+
+    def __exit__(self, *exc: object) -> None:
+        if self._previous is not None:
+            signal.signal(signal.SIGINT, self._previous)
 
 
 def _collect(fut) -> dict[str, Any]:
