@@ -150,6 +150,9 @@ def make_policy(policy: Any, params: dict[str, Any] | None = None) -> PolicySour
     params = dict(params or {})
     if isinstance(policy, str):
         controls = load_controls()
+        if policy not in load_all() and policy not in policy_names():
+            raise InputError(f"policy: unknown policy {policy!r}; valid policies: "
+                             f"{', '.join(policy_names())} (see 'rmkit methods')")
         if policy not in load_all() and policy in controls and not controls[policy].needs_result:
             if params:
                 raise InputError(f"params: {policy!r} takes no parameters, got {sorted(params)}")
