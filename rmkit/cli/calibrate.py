@@ -90,7 +90,7 @@ def run(args: argparse.Namespace) -> int:
            "defaults_from": run_.header()}
     if args.plot:
         from rmkit.files import write_atomically
-        from rmkit.workflows.plots import calibration_figure
+        from rmkit.workflows.figures import calibration_figure
 
         write_atomically(args.plot, lambda tmp: calibration_figure(ds, tmp), "--plot")
     found = tables(out, scenario.name, run_.header())

@@ -186,6 +186,7 @@ def run(args: argparse.Namespace) -> int:
                           resolve_every_sale=args.resolve_every_sale,
                           params=one_method_settings(args.param, args.policy), progress=progress)
         bound = _bound(args.bound, scenario, run_.seed) if args.bound else None
+    ds = ds.assign_coords(leg_name=("leg", [leg.name or leg.id for leg in scenario.network.legs]))
     out = summary(ds, bound, args.bound)
     out["load_factor"] = {leg: float(v) for leg, v in
                           zip(scenario.network.leg_ids, ds.load_factor_mean.values, strict=True)}
@@ -195,7 +196,7 @@ def run(args: argparse.Namespace) -> int:
         write_netcdf(ds, args.out)
     if args.plot:
         from rmkit.files import write_atomically
-        from rmkit.workflows.plots import simulation_figure
+        from rmkit.workflows.figures import simulation_figure
 
         write_atomically(args.plot, lambda tmp: simulation_figure(ds, tmp), "--plot")
     found = tables(ds, scenario, out)

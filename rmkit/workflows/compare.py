@@ -665,7 +665,13 @@ def _assemble(frame: _Frame, runs: Sequence[MethodRun]):
     ds = xr.concat(parts, dim="method", join="exact", data_vars="all", coords="minimal",
                    compat="identical")
     ds = ds.assign_coords(method=np.array([r.name for r in runs], dtype=object),
-                          kind=("method", np.array([r.kind for r in runs], dtype=object)))
+                          kind=("method", np.array([r.kind for r in runs], dtype=object)),
+                          control=("method", np.array(
+                              [r.solver.tags.control if r.solver is not None else ""
+                               for r in runs], dtype=object)),
+                          leg_name=("leg", np.array([leg.name or leg.id
+                                                     for leg in frame.network.legs],
+                                                    dtype=object)))
     if frame.visits is not None:
         v = frame.visits
         visit_vars = {
