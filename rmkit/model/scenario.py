@@ -157,6 +157,10 @@ def _prefixed(path: Path, err: InputError) -> InputError:
 def load_scenario(path: str | Path) -> Scenario:
     """Read a scenario TOML or a hub-and-spoke benchmark file (``.txt`` / ``.txt.gz``)."""
     p = Path(path)
+    if not p.exists():  # a public benchmark named alone: the copy shipped with rmkit
+        from rmkit.model.benchmarks import instance_path
+
+        p = instance_path(p) or p
     if not p.exists():
         raise InputError(f"{p}: no such file; give the path of a scenario .toml or benchmark .txt")
     if p.is_dir():
