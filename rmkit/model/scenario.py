@@ -178,6 +178,10 @@ def load_scenario(path: str | Path) -> Scenario:
             raise InputError(f"malformed TOML: {err}; fix the syntax at that line") from None
         except UnicodeDecodeError:
             raise InputError("not a UTF-8 text file; give a scenario .toml") from None
+        if "csv" in data:  # network or forecast kept in CSV files beside the TOML
+            from rmkit.model.csv_forecast import scenario_from_csv_tables
+
+            return scenario_from_csv_tables(data, p)
         return scenario_from_dict(data, source=str(p))
     except InputError as err:
         raise _prefixed(p, err) from None
