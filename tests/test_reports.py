@@ -239,7 +239,7 @@ def _with_terminal(args: list[str]) -> str:
 
 
 def test_progress_only_on_a_terminal(scenario):
-    args = ["simulate", str(scenario), "--policy", "dlp", "--resolve", "6", "--paths", "400"]
+    args = ["simulate", str(scenario), "--policy", "dlp", "--resolve", "3", "--paths", "200"]
     assert "rmkit simulate: " in _with_terminal(args)
     assert "rmkit simulate: " not in _with_terminal([*args, "--quiet"])
     assert "rmkit simulate: " not in _with_terminal([*args, "--json"])

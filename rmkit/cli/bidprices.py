@@ -96,8 +96,8 @@ def run(args: argparse.Namespace) -> int:
     check_table_target(args.csv)
     state = parse_state(scenario.network, scenario.demand, args.period, args.capacity)
     seed = run_settings(scenario, seed=args.seed).seed
-    with warnings_summarised("bidprices"), progress_bar("bidprices", args,
-                                                        bounded=False) as progress:
+    with warnings_summarised("bidprices") as caught, progress_bar("bidprices", args,
+                                                                  bounded=False) as progress:
         if progress:
             progress(f"solving {args.method}", 0, 0)
         result = solver.solve(scenario.network, scenario.demand, state=state, seed=seed)
@@ -105,7 +105,10 @@ def run(args: argparse.Namespace) -> int:
     net = scenario.network
     legs = net.leg_ids
     if args.out:
+        from rmkit.workflows.warnings_log import as_attr
+
         ds = result.to_dataset()
+        ds.attrs["warnings"] = as_attr([str(w.message).splitlines()[0] for w in caught])
         stamp(ds, scenario)
         write_netcdf(ds, args.out)
     nested = solver.tags.control == "nested" and "booking_limit" in result

@@ -9,6 +9,8 @@ from rmkit.cli._common import add_json, add_scenario, emit_json, load
 from rmkit.cli._options import add_csv, add_param, add_quiet, add_run_defaults, method_settings
 from rmkit.cli._report import CAUTION, Table
 
+#: Library fields this command fills from options (see rmkit.cli.option_message).
+OPTIONS = {"methods": "--methods", "settings": "--param", "visit_paths": "--visit-paths"}
 HELP = "run methods on a scenario: bounds, bid prices, simulated revenue, errors vs the optimum"
 
 

@@ -15,6 +15,7 @@ from pathlib import Path
 
 from rmkit.cli._common import add_json, emit_json
 from rmkit.cli.compare import (
+    OPTIONS,  # noqa: F401  (the same library fields as compare)
     add_compare_options,
     comparison_tables,
     print_report,

@@ -38,6 +38,7 @@ from __future__ import annotations
 
 import csv
 import math
+from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
@@ -222,10 +223,12 @@ def _check_one_per_period(path: Path, p: np.ndarray, values: str, period_days: f
                      f"at most one per period; {fix}")
 
 
-def scenario_from_csv_tables(data: dict[str, Any], source: Path):
-    """A scenario from a TOML whose ``[csv]`` table names CSV files (module docstring)."""
-    from rmkit.model.scenario import scenario_from_dict
+def scenario_from_csv_tables(data: dict[str, Any], source: Path,
+                             build: Callable[..., Any]) -> Any:
+    """A scenario from a TOML whose ``[csv]`` table names CSV files (module docstring).
 
+    ``build(data, source=...)`` makes the scenario from the completed TOML data (the scenario
+    reader passes its own, so the same checks apply and this module need not import it)."""
     table = dict(data.get("csv") or {})
     unknown = [k for k in table if k not in CSV_KEYS]
     if unknown:
@@ -251,7 +254,7 @@ def scenario_from_csv_tables(data: dict[str, Any], source: Path):
         out["demand"] = {"periods": int(probs.shape[0]),
                          "probabilities": [[float(v) for v in row] for row in probs]}
     try:
-        return scenario_from_dict(out, source=str(source))
+        return build(out, source=str(source))
     except InputError as err:
         for toml_key, (path, lines) in located.items():
             moved = _located(err, toml_key, path, lines)

@@ -181,7 +181,7 @@ def load_scenario(path: str | Path) -> Scenario:
         if "csv" in data:  # network or forecast kept in CSV files beside the TOML
             from rmkit.model.csv_forecast import scenario_from_csv_tables
 
-            return scenario_from_csv_tables(data, p)
+            return scenario_from_csv_tables(data, p, scenario_from_dict)
         return scenario_from_dict(data, source=str(p))
     except InputError as err:
         raise _prefixed(p, err) from None
