@@ -25,7 +25,7 @@ import numpy as np
 from rmkit import BookingState, get_solver
 from rmkit.model.scenario import load_scenario
 
-HUB_SPOKE = Path(__file__).resolve().parents[2] / "shared" / "benchmarks" / "hub-spoke"
+HUB_SPOKE = Path(__file__).resolve().parents[1] / "rmkit" / "data" / "hub-spoke"
 INSTANCES = ("rm_200_4_1.0_4.0", "rm_600_8_1.6_8.0")
 BUDGET = 60  # iterations of a budgeted warm re-solve
 

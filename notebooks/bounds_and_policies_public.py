@@ -17,7 +17,7 @@
 # The public test problems of Topaloglu (2009), "Using Lagrangian relaxation to compute
 # capacity-dependent bid prices in network revenue management", Operations Research
 # 57(3):637-649, are too large for the exact DP, so methods are judged against upper bounds. This
-# notebook reproduces, on the six vendored 4-spoke 200-period problems (tests/data/):
+# notebook reproduces, on the six vendored 4-spoke 200-period problems (shipped in rmkit/data/hub-spoke/):
 #
 # * the DLP and Lagrangian-relaxation (LR) upper bounds of the paper's Table 1;
 # * the simulated revenue of the DLP and LR bid-price policies of Table 2 (bid prices recomputed at
@@ -37,7 +37,7 @@ import pandas as pd
 from rmkit.model.scenario import load_scenario
 from rmkit.workflows.compare import compare
 
-ROOT = next(p for p in [Path.cwd(), *Path.cwd().parents] if (p / "tests" / "data").is_dir())
+ROOT = next(p for p in [Path.cwd(), *Path.cwd().parents] if (p / "tests" / "published.py").is_file())
 sys.path.insert(0, str(ROOT))
 from tests.published import DLP_BOUND, LR_BOUND, POLICY_REVENUE  # noqa: E402 (values + sources)
 
@@ -59,7 +59,7 @@ SEED = 7
 # %%
 rows = []
 for name in INSTANCES:
-    sc = load_scenario(ROOT / "tests" / "data" / f"{name}.txt.gz")
+    sc = load_scenario(name)  # the copy shipped with rmkit
     ds = compare(sc.network, sc.demand, methods=["dlp", "lr"], paths=PATHS, resolve=RESOLVE,
                  seed=SEED, scenario=name)
     get = lambda var, m, d=ds: float(d[var].sel({"method": m}))  # noqa: E731

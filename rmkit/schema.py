@@ -115,6 +115,8 @@ VARIABLES: dict[str, VariableSpec] = {
     "solve_seconds": _V((), "s", "wall time of the solve from period 0"),
     "simulate_seconds": _V((), "s", "wall time of the simulation (with re-solves)"),
     "seconds": _V((), "s", "wall time"),
+    "compile_seconds": _V((), "s", "wall time spent compiling kernels (once per install), "
+                          "kept out of the solve and simulate times"),
     "visit_period": _V(("visit",), "1", "period of a visited state"),
     "visit_capacity": _V(("visit", "leg"), "seats", "seats left in a visited state"),
     "visit_weight": _V(("visit",), "1", "share of (path, period) pairs in a visited state"),

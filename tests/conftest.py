@@ -3,12 +3,9 @@ from __future__ import annotations
 import os
 from pathlib import Path
 
-import pytest
-
-DATA = Path(__file__).parent / "data"
-SHARED = Path(__file__).resolve().parents[1].parent / "shared"
-HUB_SPOKE = SHARED / "benchmarks" / "hub-spoke"
 ROOT = Path(__file__).resolve().parents[1]
+#: The 48 public hub-and-spoke problems, shipped with the package (rmkit/data/hub-spoke).
+DATA = HUB_SPOKE = ROOT / "rmkit" / "data" / "hub-spoke"
 EXAMPLE = ROOT / "rmkit" / "examples" / "tallowmere.toml"
 
 # hypothesis: fewer examples on CI keeps the suite within its time budget without changing what
@@ -28,17 +25,9 @@ def vendored(name: str) -> Path:
     return DATA / f"{name}.txt.gz"
 
 
-def shared_instance(name: str) -> Path:
-    path = HUB_SPOKE / f"{name}.txt.gz"
-    if not path.exists():
-        pytest.skip(f"../shared is absent: {path}")
-    return path
-
-
 def instance_path(name: str) -> Path:
-    """A benchmark instance: vendored copy if there is one, else ../shared (skip if absent)."""
-    v = vendored(name)
-    return v if v.exists() else shared_instance(name)
+    """A public benchmark problem (shipped with rmkit, so every clone has them all)."""
+    return vendored(name)
 
 
 def shared_names(periods: int | None = None) -> list[str]:

@@ -118,7 +118,7 @@ def test_cli(tmp_path):
     net, dem = small_problem()
     scenario = tmp_path / "small.toml"
     save_scenario(scenario_from_model(net, dem, "small"), scenario)
-    done = _rmkit("calibrate", str(scenario), "--heuristic", "davn", "--param", "buckets=1:4",
+    done = _rmkit("calibrate", str(scenario), "--heuristic", "davn", "--search", "buckets=1:4",
                   "--paths", "100", "--json")
     assert done.returncode == 0, done.stderr
     out = json.loads(done.stdout)
@@ -128,10 +128,10 @@ def test_cli(tmp_path):
     assert out["evaluations"] == 4 + (out["default"]["setting"]["buckets"] not in (1, 2, 3, 4))
     trail = {e["setting"]["buckets"]: e["revenue"] for e in out["trail"]}
     assert out["tuned"]["revenue"] == max(trail[b] for b in (1, 2, 3, 4))
-    bad = _rmkit("calibrate", str(scenario), "--heuristic", "davn", "--param", "colour=1:2")
+    bad = _rmkit("calibrate", str(scenario), "--heuristic", "davn", "--search", "colour=1:2")
     assert bad.returncode == 2 and "valid settings" in bad.stderr
     assert "Traceback" not in bad.stderr
-    table = _rmkit("calibrate", str(scenario), "--heuristic", "dlp", "--param",
+    table = _rmkit("calibrate", str(scenario), "--heuristic", "dlp", "--search",
                    "multiplier=0.5:1.5", "--paths", "100")
     assert table.returncode == 0, table.stderr
     assert "fresh" in table.stdout and "tuned" in table.stdout

@@ -2,7 +2,7 @@
 
 External reference: the public hub-and-spoke test problems of H. Topaloglu (2009), "Using
 Lagrangian relaxation to compute capacity-dependent bid prices in network revenue management",
-Operations Research 57(3):637-649 (vendored in tests/data, the rest in ../shared). The generated
+Operations Research 57(3):637-649 (shipped with rmkit in rmkit/data/hub-spoke). The generated
 family is checked against their structure, and the load factor is recomputed here from the written
 TOML with plain arithmetic, not with rmkit's own ``load_factor``.
 """

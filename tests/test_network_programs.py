@@ -19,12 +19,11 @@ from rmkit import BookingState, DemandModel, Network, SolverError, get_solver
 from rmkit.errors import InputError
 from rmkit.methods.shared.network_lp import NetworkLP
 from rmkit.model.scenario import load_scenario
-from tests.conftest import HUB_SPOKE, instance_path, shared_names, vendored
+from tests.conftest import instance_path, shared_names
 from tests.instances import brute_force_values, random_problem, small_problem
 from tests.published import DLP_BOUND
 
-VENDORED_200 = sorted(n for n in DLP_BOUND if vendored(n).exists())
-SHARED_200 = sorted(n for n in DLP_BOUND if not vendored(n).exists())
+PUBLISHED_200 = sorted(DLP_BOUND)
 
 
 # ----------------------------------------------------------------------------- published bound
@@ -36,20 +35,13 @@ def _check_published_dlp(name: str) -> None:
     assert abs(res.value - DLP_BOUND[name]) <= 1.0, (name, res.value, DLP_BOUND[name])
 
 
-@pytest.mark.parametrize("name", VENDORED_200)
-def test_dlp_matches_published_bound_vendored(name):
+@pytest.mark.parametrize("name", PUBLISHED_200)
+def test_dlp_matches_published_bound(name):
     _check_published_dlp(name)
 
 
-@pytest.mark.parametrize("name", SHARED_200)
-def test_dlp_matches_published_bound_shared(name):
-    _check_published_dlp(name)  # instance_path skips when ../shared is absent
-
-
 def test_every_published_200_period_instance_is_covered():
-    assert len(VENDORED_200) == 6
-    if HUB_SPOKE.exists():
-        assert set(shared_names(200)) == set(DLP_BOUND)
+    assert set(shared_names(200)) == set(DLP_BOUND)
 
 
 # ----------------------------------------------------------------------------- scipy reference

@@ -60,17 +60,19 @@ def _check_instance(path):
             assert expensive[(p.origin, p.destination)] == pytest.approx(info["kappa"] * p.fare)
 
 
-@pytest.mark.parametrize("path", sorted(DATA.glob("rm_*.txt.gz")), ids=lambda p: p.name)
-def test_vendored_instances(path):
-    _check_instance(path)
-
-
-@pytest.mark.shared
-@pytest.mark.parametrize("name", shared_names() or ["(none)"])
+@pytest.mark.parametrize("name", shared_names())
 def test_all_public_instances(name):
-    if name == "(none)":
-        pytest.skip("../shared is absent")
     _check_instance(HUB_SPOKE / f"{name}.txt.gz")
+
+
+def test_all_48_public_instances_ship_with_the_package():
+    from rmkit.model.benchmarks import instance_names, instance_path
+
+    assert len(instance_names()) == 48 and instance_names() == shared_names()
+    assert instance_path("rm_600_8_1.6_8.0") == HUB_SPOKE / "rm_600_8_1.6_8.0.txt.gz"
+    assert instance_path("somewhere/rm_200_4_1.0_4.0") is None  # a path is never redirected
+    by_name = load_scenario("rm_200_4_1.0_4.0")  # a name alone reads the shipped copy
+    assert by_name.network.n_legs == 8 and by_name.name == "rm_200_4_1.0_4.0"
 
 
 def test_plain_text_and_gzip_read_the_same(tmp_path):

@@ -427,7 +427,7 @@ def test_bad_input_is_refused_with_the_field_named():
         simulate(net, dem, "fcfs", paths=0, seed=0)
     with pytest.raises(InputError, match="'resolve' parameter"):
         simulate(net, dem, "fcfs", paths=5, seed=0, resolve=dem.n_periods + 1)
-    with pytest.raises(InputError, match="valid methods"):
+    with pytest.raises(InputError, match="unknown policy 'no-such-policy'; valid policies: fcfs"):
         simulate(net, dem, "no-such-policy", paths=5, seed=0)
     with pytest.raises(InputError, match="period 0"):
         res = SolveResult(method="x", network=net, n_periods=dem.n_periods, period=3,

@@ -17,7 +17,7 @@ from rmkit.errors import InputError, ProblemTooLargeError, SolverError
 #: Subcommand modules, in the order ``rmkit --help`` lists them. Each defines
 #: ``HELP``, ``add_arguments(parser)`` and ``run(args) -> int``.
 COMMANDS = ("info", "bound", "bidprices", "simulate", "demo", "generate", "sweep", "compare",
-            "calibrate")
+            "calibrate", "methods")
 
 
 def build_parser() -> argparse.ArgumentParser:

@@ -3,12 +3,14 @@
 from __future__ import annotations
 
 import argparse
-import sys
 from typing import Any
 
-from rmkit.cli._common import CAUTION, add_json, add_scenario, emit_json, load
-from rmkit.cli._common import check_outputs as check_paths_first
+from rmkit.cli._common import add_json, add_scenario, emit_json, load
+from rmkit.cli._options import add_csv, add_param, add_quiet, add_run_defaults, method_settings
+from rmkit.cli._report import CAUTION, Table
 
+#: Library fields this command fills from options (see rmkit.cli.option_message).
+OPTIONS = {"methods": "--methods", "settings": "--param", "visit_paths": "--visit-paths"}
 HELP = "run methods on a scenario: bounds, bid prices, simulated revenue, errors vs the optimum"
 
 
@@ -19,39 +21,20 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     add_json(parser)
 
 
-def add_compare_options(parser: argparse.ArgumentParser, *, paths: int | None = None,
-                        resolve: int | None = None) -> None:
+def add_compare_options(parser: argparse.ArgumentParser) -> None:
     """Options shared with ``rmkit demo``."""
+    from rmkit.workflows.compare import DEFAULT_VISIT_PATHS
+
     parser.add_argument("--methods", default=None,
-                        help="comma-separated method names (default: every method that fits)")
-    parser.add_argument("--paths", type=int, default=paths,
-                        help="simulated request streams per policy (default: the scenario's, "
-                        "else 500)" if paths is None else f"simulated paths (default {paths})")
-    parser.add_argument("--resolve", type=int, default=resolve,
-                        help="re-solves of each policy at equally spaced periods (default 0; "
-                        "re-solving every method is the slow part)" if resolve is None else
-                        f"re-solves per policy (default {resolve})")
-    parser.add_argument("--seed", type=int, default=None, help="random seed (default: scenario's)")
-    parser.add_argument("--visit-paths", type=int, default=None,
-                        help="paths that estimate where the optimal policy goes (default 200)")
-    parser.add_argument("--param", action="append", default=[], metavar="METHOD.NAME=VALUE",
-                        help="a method setting (repeatable), e.g. lr.max_iterations=500; VALUE "
-                        "is read as JSON when it parses")
-
-
-def parse_method_params(items: list[str]) -> dict[str, dict[str, Any]]:
-    """``METHOD.NAME=VALUE`` items as method -> settings."""
-    from rmkit.cli._common import parse_params
-    from rmkit.errors import InputError
-
-    out: dict[str, dict[str, Any]] = {}
-    for item in items:
-        key, sep, raw = item.partition("=")
-        method, dot, name = key.partition(".")
-        if not (sep and dot and method and name):
-            raise InputError(f"--param: expected METHOD.NAME=VALUE, got {item!r}")
-        out.setdefault(method, {}).update(parse_params([f"{name}={raw}"]))
-    return out
+                        help="comma-separated method names (default: every method; those that "
+                        "cannot run are listed with the reason); see 'rmkit methods'")
+    add_run_defaults(parser)
+    parser.add_argument("--visit-paths", type=int, default=None, metavar="N",
+                        help="paths that estimate where the optimal policy goes (default "
+                        f"{DEFAULT_VISIT_PATHS}, at most --paths)")
+    add_param(parser, one_method=False)
+    add_csv(parser)
+    add_quiet(parser)
 
 
 def add_outputs(parser: argparse.ArgumentParser) -> None:
@@ -59,39 +42,44 @@ def add_outputs(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--plot", default=None, help="draw the figure to FILE.png")
 
 
-def run_comparison(scenario: Any, args: argparse.Namespace, quiet: bool):
-    """Run :func:`rmkit.workflows.compare.compare` with the command's options; return the Dataset."""
-    from rmkit.workflows.compare import DEFAULT_PATHS, DEFAULT_VISIT_PATHS, compare
+def run_comparison(scenario: Any, args: argparse.Namespace, command: str = "compare"):
+    """Run :func:`rmkit.workflows.compare.compare` with the command's options.
 
-    defaults = scenario.spec.defaults
-    paths = args.paths if args.paths is not None else (defaults.paths or DEFAULT_PATHS)
-    resolve = args.resolve if args.resolve is not None else 0
-    seed = args.seed if args.seed is not None else scenario.default_seed
+    Returns the Dataset and the run settings in force."""
+    from rmkit.cli._progress import progress_bar
+    from rmkit.workflows.compare import DEFAULT_VISIT_PATHS, compare, select_methods
+    from rmkit.workflows.defaults import run_settings
+
+    run = run_settings(scenario, paths=args.paths, resolve=args.resolve, seed=args.seed)
+    names = select_methods(args.methods)
+    settings = method_settings(args.param, names)
     visit_paths = args.visit_paths if args.visit_paths is not None else DEFAULT_VISIT_PATHS
-
-    def progress(message: str) -> None:
-        print(f"rmkit compare: {message}", file=sys.stderr, flush=True)
-
-    return compare(scenario.network, scenario.demand, methods=args.methods, paths=paths,
-                   resolve=resolve, seed=seed, visit_paths=visit_paths, scenario=scenario.name,
-                   settings=parse_method_params(args.param),
-                   progress=None if quiet else progress)
+    with progress_bar(command, args) as progress:
+        ds = compare(scenario.network, scenario.demand, methods=names, paths=run.paths,
+                     resolve=run.resolve, seed=run.seed, visit_paths=visit_paths,
+                     scenario=scenario.name, settings=settings, progress=progress)
+    ds.attrs["defaults_from"] = run.header()
+    return ds, run
 
 
-def check_outputs(out: str | None, plot: str | None) -> None:
-    from rmkit.errors import InputError
+def check_outputs(args: argparse.Namespace) -> None:
+    from rmkit.cli._report import check_table_target
+    from rmkit.files import NETCDF_SUFFIXES, check_output
 
-    if out is not None and not str(out).lower().endswith(".nc"):
-        raise InputError(f"--out: {out!r} should end in .nc")
-    if plot is not None and not str(plot).lower().endswith(".png"):
-        raise InputError(f"--plot: {plot!r} should end in .png")
+    if args.out is not None:
+        check_output(args.out, "--out", NETCDF_SUFFIXES)
+    if getattr(args, "plot", None) is not None:
+        check_output(args.plot, "--plot", (".png",))
+    check_table_target(args.csv)
 
 
-def write_outputs(ds, out: str | None, plot: str | None) -> None:
+def write_outputs(ds, scenario, out: str | None, plot: str | None) -> None:
     from rmkit.cli._common import write_netcdf
+    from rmkit.cli._report import stamp
     from rmkit.files import write_atomically
 
     if out:
+        stamp(ds, scenario)
         write_netcdf(ds, out)
     if plot:
         from rmkit.workflows.plots import comparison_figure
@@ -99,8 +87,10 @@ def write_outputs(ds, out: str | None, plot: str | None) -> None:
         write_atomically(plot, lambda tmp: comparison_figure(ds, tmp), "--plot")
 
 
-def report(ds, out: str | None, plot: str | None) -> dict[str, Any]:
+def report(ds, out: str | None, plot: str | None, scenario=None,
+           tables: list[str] | None = None) -> dict[str, Any]:
     """The JSON object of a comparison."""
+    from rmkit.cli._report import provenance_json
     from rmkit.workflows.compare import ranked
 
     attrs = ds.attrs
@@ -109,6 +99,7 @@ def report(ds, out: str | None, plot: str | None) -> dict[str, Any]:
         "seed": attrs["seed"],
         "paths": attrs["paths"],
         "resolve": attrs["resolve"],
+        "defaults_from": attrs.get("defaults_from", ""),
         "reference": {"kind": attrs["reference_kind"], "method": attrs["reference_method"],
                       "value": attrs["reference_value"]},
         "best_policy": attrs["best_policy"],
@@ -116,92 +107,159 @@ def report(ds, out: str | None, plot: str | None) -> dict[str, Any]:
         "methods": ranked(ds),
         "out": out,
         "plot": plot,
+        "csv": tables or [],
+        "provenance": provenance_json(scenario) if scenario is not None else None,
     }
 
 
-def _num(v: float | None, spec: str) -> str:
-    return "-" if v is None else format(v, spec)
+def _pm(mean: float | None, low: float | None, high: float | None, spec: str = ",.1f") -> str:
+    if mean is None:
+        return "-"
+    if low is None or high is None:
+        return format(mean, spec)
+    return f"{format(mean, spec)} ± {format((high - low) / 2, spec.lstrip('+'))}"
 
 
-def table_rows(ds) -> tuple[list[list[str]], list[str]]:
-    """Rows of the ranked table (strings) and the notes on skipped or failed methods."""
+def ranking_table(ds) -> tuple[Table, list[str]]:
+    """The ranked table (CSV columns and the printed cells) and notes on skipped methods."""
     from rmkit.workflows.compare import ranked
 
-    rows, notes = [], []
+    attrs = ds.attrs
+    ref_kind = attrs["reference_kind"]
+    best = attrs["best_policy"]
+    columns = ["rank", "method", "kind", "status", "revenue", "revenue 95% low",
+               "revenue 95% high", f"difference vs {best or 'best'}", "difference 95% low",
+               "difference 95% high", "difference significant", "gap % (estimate)",
+               "gap % 95% low", "gap % 95% high", "optimum or upper bound",
+               "optimum or bound std. error", "bid-price error mean", "bid-price error max",
+               "solve seconds", "simulate seconds"]
+    gap_head = "gap to optimum % (est.)" if ref_kind == "optimum" else "gap to best bound % (est.)"
+    shown_columns = ["rank", "method", "kind", "revenue ± 95%", f"vs {best or 'best'} (paired)",
+                     gap_head, "bid-price error mean / max", "optimum or bound", "seconds"]
+    rows, shown, notes = [], [], []
     for r in ranked(ds):
         kind = {"upper bound": "bound"}.get(r["kind"], r["kind"])
+        optimum = r["kind"] == "optimum"
+        rows.append([r["rank"], r["method"], r["kind"], r["status"], r["revenue_mean"],
+                     r["revenue_ci_low"], r["revenue_ci_high"], r["difference_mean"],
+                     r["difference_ci_low"], r["difference_ci_high"], r["difference_significant"],
+                     None if optimum else r["gap_percent"],
+                     None if optimum else r["gap_percent_ci_low"],
+                     None if optimum else r["gap_percent_ci_high"],
+                     None if r["kind"] == "heuristic" else r["value"], r["value_stderr"],
+                     r["bid_price_error_mean"], r["bid_price_error_max"], r["solve_seconds"],
+                     r["simulate_seconds"]])
         if r["status"] != "ran":
-            rows.append(["-", r["method"], r["status"], *["-"] * 6])
+            shown.append(["-", r["method"], r["status"], *["-"] * 6])
             notes.append(f"{r['method']} {r['status']}: {r['reason']}")
             continue
-        half = (None if r["revenue_ci_high"] is None
-                else (r["revenue_ci_high"] - r["revenue_ci_low"]) / 2)
+        if r["method"] == best:
+            diff = "best"
+        elif r["difference_mean"] is None:
+            diff = "-"
+        else:
+            diff = _pm(r["difference_mean"], r["difference_ci_low"], r["difference_ci_high"],
+                       "+,.1f") + (" *" if r["difference_significant"] else "  ")
+        if optimum:
+            gap = "the optimum"
+        else:
+            gap = _pm(r["gap_percent"], r["gap_percent_ci_low"], r["gap_percent_ci_high"], ".2f")
         err = ("-" if r["bid_price_error_mean"] is None else
                f"{r['bid_price_error_mean']:.2f} / {r['bid_price_error_max']:.1f}")
-        bound = "-" if r["kind"] == "heuristic" else _num(r["value"], ",.1f")
-        if r["kind"] != "heuristic" and r["value_stderr"] is not None:
-            bound += f" ± {r['value_stderr']:.1f}"
+        value = "-"
+        if r["kind"] != "heuristic" and r["value"] is not None:
+            value = ("DP " if optimum else "≤ ") + f"{r['value']:,.1f}"
+            if r["value_stderr"] is not None:
+                value += f" ± {1.96 * r['value_stderr']:.1f}"
         seconds = sum(v for v in (r["solve_seconds"], r["simulate_seconds"]) if v is not None)
-        rows.append([_num(r["rank"], "d"), r["method"], kind, _num(r["revenue_mean"], ",.1f"),
-                     "-" if half is None else f"± {half:,.1f}", _num(r["gap_percent"], ".2f"),
-                     err, bound, f"{seconds:.2f}"])
-    return rows, notes
+        shown.append(["-" if r["rank"] is None else str(r["rank"]), r["method"], kind,
+                      _pm(r["revenue_mean"], r["revenue_ci_low"], r["revenue_ci_high"]),
+                      diff, gap, err, value, f"{seconds:.2f}"])
+    title = f"{attrs['scenario']}: {attrs.get('defaults_from') or _plain_header(attrs)}"
+    table = Table("ranking", title, columns, rows, shown_columns=shown_columns, shown=shown)
+    return table, notes
 
 
-def print_report(ds, out: str | None, plot: str | None) -> None:
-    from rich.table import Table
+def _plain_header(attrs) -> str:
+    return f"{attrs['paths']:,} paths, {attrs['resolve']} re-solves, seed {attrs['seed']}"
 
+
+def bid_price_table(ds) -> Table:
+    """Each method's leg bid prices at the start of the horizon (method x leg)."""
+    legs = [str(v) for v in ds.leg.values]
+    rows = []
+    for q, name in enumerate(ds.method.values.tolist()):
+        d = ds.isel(method=q)
+        if str(d["status"].values) != "ran":
+            continue
+        values = [float(v) for v in d["bid_price"].values]
+        if all(v != v for v in values):  # NaN: a bound without bid prices
+            continue
+        rows.append([name, *values])
+    return Table("bid_prices", "bid prices at the start of the horizon (currency per seat)",
+                 ["method", *legs], rows, formats=[None, *[",.2f"] * len(legs)])
+
+
+def comparison_notes(ds, notes: list[str]) -> list[str]:
     from rmkit.workflows.compare import ranked
 
     attrs = ds.attrs
     ref = attrs["reference_kind"]
-    rows, notes = table_rows(ds)
-    columns = ["rank", "method", "kind", "revenue", "95% CI",
-               "gap to optimum %" if ref == "optimum" else "gap to best bound %",
-               "bid-price error mean / max", "bound or optimum", "seconds"]
-    table = Table(title=f"{attrs['scenario']}: {attrs['paths']} paths, {attrs['resolve']} "
-                  f"re-solves, seed {attrs['seed']}", title_justify="left")
-    for k, col in enumerate(columns):
-        table.add_column(col, justify="left" if k in (1, 2) else "right")
-    for row in rows:
-        table.add_row(*row)
-    if ref != "none":
-        notes.append(f"gaps against the {ref} ({attrs['reference_method']}, "
-                     f"{attrs['reference_value']:,.2f})")
+    best = attrs["best_policy"]
+    out = list(notes)
+    if best:
+        out.append(f"vs {best}: each policy's revenue minus {best}'s on the same request streams "
+                   "(paired, 95% interval); * = the interval excludes 0, a real difference")
+    if ref == "optimum":
+        out.append(f"gap % (est.): 100 (optimum - simulated revenue) / optimum, with the optimum "
+                   f"the exact DP value {attrs['reference_value']:,.2f} ({attrs['reference_method']})"
+                   "; a simulated estimate, so the interval can reach below 0")
+    elif ref != "none":
+        out.append(f"gap % (est.): against the best upper bound ({attrs['reference_method']}, "
+                   f"{attrs['reference_value']:,.2f}); the true gap to the optimum is smaller")
     if attrs["errors"]:
-        notes.append(f"bid-price error (currency per seat): {attrs['errors']}")
+        out.append(f"bid-price error (currency per seat): {attrs['errors']}")
+    compiled = sum(r["compile_seconds"] or 0.0 for r in ranked(ds))
+    if compiled > 0.5:
+        out.append(f"kernel compilation (once per install) took {compiled:.1f} s, kept out of "
+                   "the seconds")
     for r in ranked(ds):
         if r["check"] not in ("", "ok"):
-            notes.append(f"CHECK FAILED for {r['method']}: {r['check']}")
+            out.append(f"CHECK FAILED for {r['method']}: {r['check']}")
         if r["warning"]:
-            notes.append(f"{r['method']}: {r['warning']}")
-    for label, target in (("NetCDF", out), ("figure", plot)):
+            out.append(f"{r['method']}: {r['warning']} (all in the NetCDF attr 'warnings')")
+    return out
+
+
+def comparison_tables(ds) -> tuple[list[Table], list[str]]:
+    ranking, notes = ranking_table(ds)
+    return [ranking, bid_price_table(ds)], comparison_notes(ds, notes)
+
+
+def print_report(ds, tables: list[Table], notes: list[str], written: dict[str, Any]) -> None:
+    from rmkit.cli._report import print_tables
+
+    lines = list(notes)
+    for label, target in written.items():
         if target:
-            notes.append(f"{label} written to {target}")
-    notes.append(CAUTION)
-    print_wide(table, notes)
-
-
-def print_wide(table, notes: list[str]) -> None:
-    """Print a rich table and notes; to pipes and files wide enough that no cell wraps."""
-    from rich.console import Console
-
-    console = Console()
-    if not console.is_terminal:
-        console = Console(width=160)
-    console.print(table)
-    console.print("\n".join(notes), style="dim")
+            lines.append(f"{label} written to {target}")
+    lines.append(CAUTION)
+    print_tables(tables, lines)
 
 
 def run(args: argparse.Namespace) -> int:
-    check_paths_first(args, out=(".nc",), plot=(".png",))
-    scenario = load(args.scenario)
-    check_outputs(args.out, args.plot)
-    ds = run_comparison(scenario, args, quiet=args.json)
-    write_outputs(ds, args.out, args.plot)
-    if args.json:
-        emit_json(report(ds, args.out, args.plot))
-    else:
-        print_report(ds, args.out, args.plot)
-    return 0
+    from rmkit.cli._report import warnings_summarised, write_tables
 
+    check_outputs(args)  # before any work: a bad output path never wastes a comparison
+    scenario = load(args.scenario)
+    with warnings_summarised("compare"):
+        ds, _ = run_comparison(scenario, args)
+    write_outputs(ds, scenario, args.out, args.plot)
+    tables, notes = comparison_tables(ds)
+    written = [str(p) for p in write_tables(tables, args.csv)]
+    if args.json:
+        emit_json(report(ds, args.out, args.plot, scenario, written))
+    else:
+        print_report(ds, tables, notes, {"NetCDF": args.out, "figure": args.plot,
+                                         "tables": ", ".join(written)})
+    return 0

@@ -19,7 +19,7 @@ def _fares(text: str) -> tuple[int, int]:
 
 def _common(p: argparse.ArgumentParser, periods: int, arrival: float, fares: str) -> None:
     p.add_argument("--alpha", type=float, required=True,
-                   help="load factor: expected seat requests / total capacity (met exactly)")
+                   help="demand factor alpha: expected seat requests / total capacity (met exactly)")
     p.add_argument("--periods", type=int, default=periods, help=f"booking periods (default {periods})")
     p.add_argument("--arrival", type=float, default=arrival,
                    help=f"requests per period before capacity is fitted (default {arrival})")

@@ -6,7 +6,7 @@ import argparse
 
 from rmkit.cli._common import add_json, add_scenario, emit_json, load, print_table
 
-HELP = "legs, products, periods, load factor and exact-DP state space of a scenario"
+HELP = "legs, products, periods, demand factor and exact-DP state space of a scenario"
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -27,7 +27,9 @@ def summary(scenario) -> dict:
         "alpha": load_factor(net, dem),
         "states": net.state_space_size,
         "expected_requests": float(dem.demand_to_come(0).sum()),
-        "leg_load": {
+        # expected seat requests / capacity: how tight a leg is before any control. Not the
+        # load factor, which simulate reports as seats sold / capacity.
+        "demand_factor": {
             leg.id: (float(leg_demand[i] / leg.capacity) if leg.capacity else None)
             for i, leg in enumerate(net.legs)
         },
@@ -44,11 +46,12 @@ def run(args: argparse.Namespace) -> int:
     leg_demand = net.incidence @ scenario.demand.demand_to_come(0)
     print_table(
         f"{s['scenario']}: {s['legs']} legs, {s['products']} products, {s['periods']} periods",
-        ["leg", "capacity", "expected seat requests", "load factor"],
+        ["leg", "capacity", "expected seat requests", "demand factor"],
         [
-            [leg.id, leg.capacity, float(leg_demand[i]), s["leg_load"][leg.id]]
+            [leg.id, leg.capacity, float(leg_demand[i]), s["demand_factor"][leg.id]]
             for i, leg in enumerate(net.legs)
         ],
-        note=f"network load factor alpha = {s['alpha']:.4f}; exact-DP states = {s['states']:,}",
+        note=f"demand factor = expected seat requests / capacity (network: alpha = "
+        f"{s['alpha']:.4f}); exact-DP states = {s['states']:,}",
     )
     return 0

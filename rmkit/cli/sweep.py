@@ -6,10 +6,14 @@ import argparse
 import sys
 from pathlib import Path
 
-from rmkit.cli._common import add_json, emit_json, fmt
+from rmkit.cli._common import add_json, emit_json
+from rmkit.cli._options import add_csv
+from rmkit.cli._report import Table, check_table_target, print_tables, write_tables
 
 #: Library fields this command fills from options (see rmkit.cli.option_message).
-OPTIONS = {"store": "--out", "scheduler": "--scheduler", "workers": "--workers"}
+OPTIONS = {"store": "--out", "scheduler": "--scheduler", "workers": "--workers", "grid": "GRID"}
+#: Scenarios of the value matrix printed (--csv writes them all).
+MAX_PRINTED = 60
 HELP = "run a grid of scenarios x methods x seeds on a local or remote dask cluster (resumable)"
 
 EPILOG = """\
@@ -39,26 +43,10 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--dashboard", action="store_true",
                         help="serve the local cluster's dask dashboard on 127.0.0.1 (an "
                         "unauthenticated page; off by default)")
+    parser.add_argument("--plot", default=None,
+                        help="draw the method x scenario panel to FILE.png")
+    add_csv(parser)
     add_json(parser)
-
-
-def print_wide_table(title: str, columns: list[str], rows: list[list], note: str = "") -> None:
-    """A rich table that keeps long labels whole (at least 160 columns when not on a terminal)."""
-    import shutil
-
-    from rich.console import Console
-    from rich.table import Table
-
-    table = Table(title=title, title_justify="left")
-    for i, col in enumerate(columns):
-        table.add_column(col, justify="left" if i == 0 else "right", no_wrap=True)
-    for row in rows:
-        table.add_row(*[fmt(v) for v in row])
-    width = shutil.get_terminal_size((160, 24)).columns if sys.stdout.isatty() else 160
-    console = Console(width=max(width, 80))
-    console.print(table)
-    if note:
-        console.print(note, style="dim")
 
 
 def default_store(grid: str) -> Path:
@@ -66,64 +54,120 @@ def default_store(grid: str) -> Path:
     return p.with_name(p.stem + ".sweep")
 
 
+def refuse_scenario_file(path: str) -> None:
+    """A scenario file given where a grid belongs gets its own message, not a schema error."""
+    import tomllib
+
+    from rmkit.errors import InputError
+
+    try:
+        data = tomllib.loads(Path(path).read_text(encoding="utf-8"))
+    except (OSError, UnicodeDecodeError, tomllib.TOMLDecodeError):
+        return  # load_grid says what is wrong
+    if not {"leg", "product", "demand", "csv"} & set(data) or "sweep" in data:
+        return
+    raise InputError(f"grid: {path} is a scenario file, not a sweep grid; run 'rmkit compare "
+                     f"{path}' on it, or name it in a grid under [[scenario]] files = [...] "
+                     "(layout: rmkit sweep --help; example: examples/sweep_grid.toml)")
+
+
+def tables(ds, grid_name: str, report) -> list[Table]:
+    """Cells by method, the method x scenario values, and the identical policies."""
+    from rmkit.workflows.sweep import summary_by_method, value_table
+    from rmkit.workflows.sweep.identical import identical_policies
+
+    summary = summary_by_method(ds)
+    methods = [str(m) for m in summary.method.values]
+    cells = Table(
+        "cells", f"{grid_name}: {report.total} cells ({report.resumed} already stored, "
+        f"{report.computed} computed now) in {report.seconds:.1f} s",
+        ["method", "measure", "kind", "paths", "re-solves", "done", "failed",
+         "mean seconds per cell"],
+        [[m, str(summary.measure.values[q]), str(summary.kind.values[q]),
+          int(ds["paths"].values[q]) if str(summary.measure.values[q]) == "policy" else None,
+          int(ds["resolve"].values[q]) if str(summary.measure.values[q]) == "policy" else None,
+          int(summary["done"].values[q]), int(summary["failed"].values[q]),
+          float(summary["mean_seconds"].values[q])] for q, m in enumerate(methods)],
+        [None, None, None, ",d", "d", "d", "d", ".2f"])
+    values = value_table(ds)
+    matrix = Table(
+        "values", "value by scenario and method, mean over seeds (an optimum, an upper bound, or "
+        "a policy's mean simulated revenue: see the measure and kind above)",
+        ["scenario", *methods],
+        [[str(sc), *[float(v) for v in values.sel(scenario=sc).values]]
+         for sc in values.scenario.values],
+        [None, *[",.1f"] * len(methods)])
+    same = list(identical_policies(ds))
+    twins = Table("identical_policies", "policies with identical revenue on every path",
+                  ["scenario", "policy", "same as"], [list(t) for t in same])
+    return [cells, matrix, twins] if same else [cells, matrix]
+
+
 def run(args: argparse.Namespace) -> int:
     from rmkit.errors import InputError
+    from rmkit.files import check_output
     from rmkit.workflows.sweep import (
         SweepInterrupted,
         iter_failures,
         load_grid,
         open_sweep,
         run_sweep,
-        summary_by_method,
-        value_table,
     )
 
     if args.workers is not None and args.workers < 1:
         raise InputError(f"--workers: must be >= 1, got {args.workers}")
+    check_table_target(args.csv)
+    if args.plot is not None:
+        check_output(args.plot, "--plot", (".png",))
+    refuse_scenario_file(args.grid)
     grid = load_grid(args.grid)
     store = Path(args.out) if args.out else default_store(args.grid)
     try:
         report = run_sweep(grid, store, scheduler=args.scheduler, workers=args.workers,
                            retry_failed=args.retry_failed, dashboard=args.dashboard,
-                           progress=not (args.no_progress or args.json))
+                           progress=not (args.no_progress or args.json) and sys.stderr.isatty())
     except SweepInterrupted as stop:
         print(f"rmkit: interrupted: {stop.stored} of {stop.report.total} cells are stored in "
               f"{stop.report.store}; run the same command to resume", file=sys.stderr)
         return 130
-    ds = open_sweep(store)
-    summary = summary_by_method(ds)
+    ds = open_sweep(store, paths=True)
     failures = list(iter_failures(ds))
+    found = tables(ds, grid.name, report)
+    written = [str(p) for p in write_tables(found, args.csv)]
+    if args.plot:
+        from rmkit.files import write_atomically
+        from rmkit.workflows.figures import sweep_figure
+
+        write_atomically(args.plot, lambda tmp: sweep_figure(ds, tmp), "--plot")
     if args.json:
         emit_json({
             "store": str(store), "combined": str(store / "sweep.nc"), "cells": report.total,
             "resumed": report.resumed, "computed": report.computed,
             "failed": len(failures), "seconds": report.seconds,
-            "methods": {
-                str(m): {k: summary[k].sel({"method": m}).item() for k in summary.data_vars}
-                for m in summary.method.values
-            },
+            "methods": {str(r[0]): dict(zip(found[0].columns[1:], r[1:], strict=True))
+                        for r in found[0].rows},
+            "values": {str(r[0]): dict(zip(found[1].columns[1:], r[1:], strict=True))
+                       for r in found[1].rows},
+            "identical_policies": [dict(zip(("scenario", "policy", "same_as"), r, strict=True))
+                                   for r in (found[2].rows if len(found) > 2 else [])],
             "failures": [dict(zip(("scenario", "method", "seed", "error"), f, strict=True))
                          for f in failures],
+            "csv": written, "plot": args.plot,
         })
         return 1 if failures else 0
-    print_wide_table(
-        f"{grid.name}: {report.total} cells ({report.resumed} already stored, "
-        f"{report.computed} computed now) in {report.seconds:.1f} s",
-        ["method", "measure", "kind", "done", "failed", "mean value", "mean std. error",
-         "mean seconds"],
-        [[str(m), str(summary.measure.values[i]), str(summary.kind.values[i]),
-          int(summary["done"].values[i]),
-          int(summary["failed"].values[i]), float(summary["mean_value"].values[i]),
-          float(summary["mean_stderr"].values[i]), float(summary["mean_seconds"].values[i])]
-         for i, m in enumerate(summary.method.values)],
-        note=f"store: {store}  (open with rmkit.open_sweep; combined file sweep.nc)",
-    )
-    values = value_table(ds)
-    if values.sizes["scenario"] <= 60:
-        methods = [str(m) for m in values.method.values]
-        print_wide_table("mean value over seeds", ["scenario", *methods],
-                    [[str(s), *[float(v) for v in values.sel(scenario=s).values]]
-                     for s in values.scenario.values])
+    matrix = found[1]
+    if len(matrix.rows) > MAX_PRINTED:
+        matrix.shown = [[matrix.cell(k, v) for k, v in enumerate(r)]
+                        for r in matrix.rows[:MAX_PRINTED]]
+        matrix.note = f"first {MAX_PRINTED} of {len(matrix.rows)} scenarios; --csv has them all"
+    if len(found) > 2:
+        from rmkit.workflows.sweep.identical import WHY
+
+        found[2].note = WHY
+    notes = [f"store: {store}  (open with rmkit.open_sweep; combined file sweep.nc)"]
+    notes += [f"{label} written to {target}" for label, target in
+              (("figure", args.plot), ("tables", ", ".join(written))) if target]
+    print_tables(found, notes)
     for scen, meth, seed, err in failures[:10]:
         print(f"failed: {scen} / {meth} / seed {seed}: {err}", file=sys.stderr)
     if len(failures) > 10:

@@ -381,6 +381,13 @@ def register_view(suffix: str, factory: Callable[[str, dict[str, Any]], Solver])
     VIEWS[suffix] = factory
 
 
+def is_method_name(name: str) -> bool:
+    """A registered method, or a view of one (``"<method>:<view>"``)."""
+    reg = load_all()
+    base, sep, suffix = name.rpartition(":")
+    return name in reg or bool(sep and suffix in VIEWS and base in reg)
+
+
 def get_solver(name: str, **settings: Any) -> Solver:
     """A solver instance by method name; an unknown name lists the valid ones."""
     reg = load_all()

@@ -34,6 +34,11 @@ def leg_id(o: int, d: int) -> str:
     return f"{o}-{d}"
 
 
+def _place(location: int) -> str:
+    """A readable name for figures and tables: location 0 is the hub."""
+    return "hub" if location == 0 else f"spoke {location}"
+
+
 def product_id(o: int, d: int, fare_class: int) -> str:
     return f"{o}-{d}-{fare_class}"
 
@@ -112,7 +117,7 @@ def parse_hub_spoke(text: str, name: str = "") -> tuple[Network, IndependentDema
     legs = []
     for line in leg_rows:
         o, d, cap = _whole(line, 3, "a leg (origin destination capacity)")
-        legs.append(Leg(id=leg_id(o, d), capacity=cap, name=f"{o} to {d}"))
+        legs.append(Leg(id=leg_id(o, d), capacity=cap, name=f"{_place(o)} to {_place(d)}"))
     _, product_rows = _counted(sec[2], "products")
     leg_ids = {leg.id for leg in legs}
     products = []

@@ -173,7 +173,12 @@ def load_scenario(path: str | Path) -> Scenario:
     """Read a scenario TOML or a hub-and-spoke benchmark file (``.txt`` / ``.txt.gz``)."""
     from rmkit.files import check_input, read_text
 
-    p = check_input(path, "scenario .toml or benchmark .txt")
+    p = Path(path)
+    if not p.exists():  # a public benchmark named alone: the copy shipped with rmkit
+        from rmkit.model.benchmarks import instance_path
+
+        p = instance_path(p) or p
+    p = check_input(p, "scenario .toml or benchmark .txt")
     try:
         if p.name.lower().endswith((".txt", ".txt.gz")):
             from rmkit.model.hub_spoke import read_hub_spoke
@@ -185,6 +190,10 @@ def load_scenario(path: str | Path) -> Scenario:
             data = tomllib.loads(text)
         except tomllib.TOMLDecodeError as err:
             raise InputError(f"malformed TOML: {err}; fix the syntax at that line") from None
+        if "csv" in data:  # network or forecast kept in CSV files beside the TOML
+            from rmkit.model.csv_forecast import scenario_from_csv_tables
+
+            return scenario_from_csv_tables(data, p, scenario_from_dict)
         return scenario_from_dict(data, source=str(p))
     except InputError as err:
         raise _prefixed(p, err) from None

@@ -40,6 +40,7 @@ from rmkit.errors import InputError
 from rmkit.methods.base import Search, Solver
 from rmkit.model.demand import DemandModel, check_compatible
 from rmkit.model.network import Network
+from rmkit.workflows.progress import Progress
 from rmkit.workflows.reference import Reference, solve_reference
 
 #: Most points of an integer grid (evenly spaced, ends included, when the range is wider).
@@ -265,9 +266,12 @@ class ScaledPolicy:
 class _Objective:
     """Mean revenue of a setting on fixed streams; every setting evaluated once."""
 
-    def __init__(self, network, demand, heuristic, fixed, paths, seed):
+    def __init__(self, network, demand, heuristic, fixed, paths, seed, settings=None,
+                 progress=None, planned=1):
         self.network, self.demand, self.heuristic = network, demand, heuristic
         self.fixed, self.paths, self.seed = dict(fixed), paths, seed
+        self.settings = dict(settings or {})  # method settings held fixed, not searched
+        self.progress, self.planned = progress, planned
         self.cache: dict[tuple, Evaluation] = {}
         self.trail: list[Evaluation] = []
 
@@ -276,6 +280,10 @@ class _Objective:
         seed = self.seed if seed is None else seed
         key = (seed, tuple(sorted(full.items())))
         if key not in self.cache:
+            if self.progress is not None:
+                done = len(self.cache)
+                self.progress(f"setting {done + 1} of about {max(self.planned, done + 1)}", done,
+                              max(self.planned, done + 1))
             ev = self._run(full, seed)
             self.cache[key] = ev
             if seed == self.seed:
@@ -287,7 +295,7 @@ class _Objective:
         from rmkit.workflows.policies import SolverPolicy
         from rmkit.workflows.simulate import simulate
 
-        settings = {k: v for k, v in setting.items() if k != "resolve"}
+        settings = {**self.settings, **{k: v for k, v in setting.items() if k != "resolve"}}
         native = get_solver(self.heuristic).params
         multiplier = settings.pop("multiplier", 1.0) if "multiplier" not in native else None
         policy: Any = get_solver(self.heuristic, **settings)
@@ -311,6 +319,8 @@ def calibrate(
     fresh_seed: int | None = None,
     resolve: int = 0,
     reference: bool = True,
+    settings: Mapping[str, Any] | None = None,
+    progress: Progress | None = None,
 ):
     """Search ``ranges`` (setting name -> ``"LO:HI"`` or ``"a,b"``) for the best mean revenue.
 
@@ -329,6 +339,10 @@ def calibrate(
     fresh_seed
         Seed of the fresh streams the tuned and default settings are re-measured on (default
         ``seed + 1``).
+    settings
+        Method settings held fixed during the search (not searched).
+    progress
+        ``progress(what, done, total)`` callback, told before each new evaluation.
     reference
         Also solve the yardstick (:func:`rmkit.workflows.reference.solve_reference`: the optimum
         where it fits, else the best deterministic upper bound) to report against.
@@ -371,10 +385,18 @@ def calibrate(
     default_setting = {"resolve": int(resolve)}
     if "multiplier" in valid:
         default_setting["multiplier"] = 1.0
+    fixed = dict(settings or {})
+    clash = sorted(set(fixed) & set(searched))
+    if clash:
+        raise InputError(f"settings: {clash[0]!r} is both held fixed and searched; drop one")
+    get_solver(heuristic, **fixed)  # unknown names are refused before any work
     for name in valid:
         if name in solver.params:
-            default_setting[name] = solver.params[name].default
-    objective = _Objective(network, demand, heuristic, default_setting, paths, seed)
+            default_setting[name] = fixed.pop(name, solver.params[name].default)
+    grid = math.prod(len(v) for v in discrete.values())
+    planned = 1 + grid * (COARSE_POINTS + 12 if continuous else 1) + 2
+    objective = _Objective(network, demand, heuristic, default_setting, paths, seed, fixed,
+                           progress, planned)
     default = objective({})
     best: Evaluation | None = None  # the best setting within the searched ranges
     for combo in itertools.product(*discrete.values()):

@@ -48,7 +48,7 @@ import json
 import math
 import time
 import warnings
-from collections.abc import Callable, Iterator, Mapping, Sequence
+from collections.abc import Iterator, Mapping, Sequence
 from contextlib import contextmanager
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
@@ -61,7 +61,10 @@ from rmkit.methods.base import kind_of
 from rmkit.model.demand import Arrivals, DemandModel, check_compatible
 from rmkit.model.network import Network
 from rmkit.results import SolveResult
+from rmkit.workflows.compiling import CompileWatch
+from rmkit.workflows.progress import Progress, part
 from rmkit.workflows.reference import Reference, best_reference
+from rmkit.workflows.warnings_log import counts
 
 if TYPE_CHECKING:  # pragma: no cover
     import xarray as xr
@@ -97,16 +100,15 @@ class MethodRun:
     result: SolveResult | None = None
     simulation: Any = None  # xarray.Dataset from rmkit.workflows.simulate.simulate
     simulate_seconds: float = math.nan
+    compile_seconds: float = 0.0
     check: str = ""
     warnings: list[str] = field(default_factory=list)
 
     def note(self) -> str:
-        """The distinct warnings raised while solving or simulating, counted."""
-        if not self.warnings:
-            return ""
-        distinct = list(dict.fromkeys(self.warnings))
-        more = f" (and {len(distinct) - 1} other kinds)" if len(distinct) > 1 else ""
-        return f"{len(self.warnings)} warning(s), e.g.: {distinct[0]}{more}"
+        """The warnings raised while solving or simulating, counted (one line)."""
+        from rmkit.workflows.warnings_log import summary
+
+        return summary(self.warnings)
 
 
 def select_methods(methods: Sequence[str] | str | None) -> list[str]:
@@ -136,9 +138,12 @@ def run_methods(
     *,
     seed: int,
     settings: Mapping[str, Mapping[str, Any]] | None = None,
-    progress: Callable[[str], None] | None = None,
+    progress: Progress | None = None,
 ) -> list[MethodRun]:
-    """Solve every method from period 0 at full capacity; skip (with the reason) what cannot run."""
+    """Solve every method from period 0 at full capacity; skip (with the reason) what cannot run.
+
+    ``progress`` hears ``(what, done, total)`` in solves; kernel compilation is timed apart
+    (``compile_seconds``) and kept out of the solve time."""
     from rmkit.errors import ProblemTooLargeError
     from rmkit.methods.base import get_solver
 
@@ -154,7 +159,7 @@ def run_methods(
     for solver in solvers.values():
         solver.check_params()
     runs = []
-    for name in names:
+    for k, name in enumerate(names):
         solver = solvers[name]
         run = MethodRun(name=name, kind=kind_of(solver), status="ran", solver=solver)
         reason = solver.refusal_reason(network, demand)
@@ -163,10 +168,11 @@ def run_methods(
             runs.append(run)
             continue
         if progress:
-            progress(f"solving {name}")
+            progress(f"solving {name}", k, len(names))
         try:
-            with _collect(run):
-                run.result = solver.solve(network, demand, seed=seed)
+            with _collect(run), CompileWatch() as compiling:
+                run.result = _without(solver.solve(network, demand, seed=seed), compiling.seconds)
+            run.compile_seconds += compiling.seconds
         except ProblemTooLargeError as err:
             run.status, run.reason = "skipped", str(err)
         except (SolverError, InputError) as err:
@@ -176,6 +182,15 @@ def run_methods(
             run.reason = f"status {run.result.status}: {run.result.message}"
         runs.append(run)
     return runs
+
+
+def _without(result: SolveResult, compile_seconds: float) -> SolveResult:
+    """The result with the kernel compilation taken out of its solve time."""
+    if not compile_seconds:
+        return result
+    from dataclasses import replace
+
+    return replace(result, seconds=max(result.seconds - compile_seconds, 0.0))
 
 
 @contextmanager
@@ -357,27 +372,33 @@ def simulate_runs(
     paths: int,
     seed: int,
     resolve: int,
-    progress: Callable[[str], None] | None = None,
+    progress: Progress | None = None,
 ) -> None:
     """Simulate the policy of every method that ran and gives one, on the same request streams."""
+    from rmkit.workflows.progress import part
     from rmkit.workflows.simulate import simulate
 
-    for run in runs:
-        if run.status != "ran" or run.result is None or not run.solver.tags.control:
-            continue
-        if progress:
-            progress(f"simulating {run.name}")
+    todo = [r for r in runs
+            if r.status == "ran" and r.result is not None and r.solver.tags.control]
+    for k, run in enumerate(todo):
         # Solved once from the start: replay that result (no second solve); else re-solve.
         policy = run.result if resolve <= 1 else run.solver
         started = time.perf_counter()
         try:
-            with _collect(run):
+            with warnings.catch_warnings():  # counted in the simulation's attrs instead
+                warnings.simplefilter("ignore")
                 run.simulation = simulate(network, demand, policy, paths=paths, seed=seed,
-                                          resolve=resolve)
+                                          resolve=resolve,
+                                          progress=part(progress, f"simulating {run.name}", k,
+                                                        len(todo)))
         except (SolverError, InputError) as err:
             run.status, run.reason = "failed", f"simulation: {err}"
             continue
-        run.simulate_seconds = time.perf_counter() - started
+        for text, n in json.loads(run.simulation.attrs.get("warnings", "{}")).items():
+            run.warnings.extend([text] * n)
+        compiled = float(run.simulation.attrs.get("compile_seconds", 0.0))
+        run.compile_seconds += compiled
+        run.simulate_seconds = time.perf_counter() - started - compiled
 
 
 # ---------------------------------------------------------------- the comparison
@@ -409,7 +430,7 @@ def compare(
     visit_paths: int = DEFAULT_VISIT_PATHS,
     with_exact: bool = True,
     scenario: str = "",
-    progress: Callable[[str], None] | None = None,
+    progress: Progress | None = None,
 ) -> xr.Dataset:
     """Run methods on one scenario and compare them value by value; see the module docstring.
 
@@ -430,6 +451,9 @@ def compare(
     with_exact
         When ``exact`` is not among ``methods`` but fits, still solve it as the yardstick of the
         errors and gaps (it is then not a row of the result).
+    progress
+        ``progress(what, done, total)`` callback (:mod:`rmkit.workflows.progress`): the solves
+        are the first third of the run, the simulations the rest.
 
     Returns
     -------
@@ -455,12 +479,13 @@ def compare(
     demand.check_sample_size(paths)  # before any solve: the paths must fit in memory
     names = select_methods(methods)
     _check_table_size(network, demand, len(names))
-    runs = run_methods(network, demand, names, seed=seed, settings=settings, progress=progress)
+    runs = run_methods(network, demand, names, seed=seed, settings=settings,
+                       progress=part(progress, "", 0, 3))
     for run in runs:
         if run.result is not None:
             run.check = check_allocation(network, run.result)
     simulate_runs(network, demand, runs, paths=paths, seed=seed, resolve=resolve,
-                  progress=progress)
+                  progress=_scaled(progress, 1, 2, 3))
     for run in runs:
         if run.simulation is not None:
             verdict = check_paths(network, run.simulation)
@@ -475,7 +500,7 @@ def compare(
         exact = _background_exact(network, demand, seed, progress)
     if exact is not None:
         if progress:
-            progress("exact values where the optimal policy goes")
+            progress("exact values where the optimal policy goes", 3, 3)
         _exact_errors(frame, exact, min(visit_paths, paths), seed)
     frame.reference = best_reference((r.solver, r.result) for r in [*runs, exact]
                                      if r is not None and r.status == "ran" and r.result is not None)
@@ -498,10 +523,23 @@ def compare(
             "best_policy": frame.best,
             "errors": frame.errors_note,
             "confidence": 0.95,
+            "warnings": json.dumps({r.name: counts(r.warnings) for r in runs if r.warnings}),
             "rmkit_version": __version__,
         }
     )
     return ds
+
+
+def _scaled(progress: Progress | None, start: float, width: float, total: float
+            ) -> Progress | None:
+    """Progress of a phase that covers ``[start, start + width]`` of ``total``."""
+    if progress is None:
+        return None
+
+    def report(what: str, done: float, count: float) -> None:
+        progress(what, start + width * (done / count if count else 0.0), total)
+
+    return report
 
 
 def _exact_errors(frame: _Frame, exact: MethodRun, visit_paths: int, seed: int) -> None:
@@ -522,7 +560,7 @@ def _exact_errors(frame: _Frame, exact: MethodRun, visit_paths: int, seed: int) 
 
 
 def _background_exact(network: Network, demand: DemandModel, seed: int,
-                      progress: Callable[[str], None] | None) -> MethodRun | None:
+                      progress: Progress | None) -> MethodRun | None:
     """A registered method that gives the optimum, as the yardstick when it fits but was not
     asked for (it is not a row of the table)."""
     from rmkit.errors import ProblemTooLargeError
@@ -535,7 +573,7 @@ def _background_exact(network: Network, demand: DemandModel, seed: int,
         if solver.refusal_reason(network, demand) is not None:
             continue
         if progress:
-            progress(f"solving {name} (the yardstick)")
+            progress(f"solving {name} (the yardstick)", 3, 3)
         try:
             result = solver.solve(network, demand, seed=seed)
         except (ProblemTooLargeError, SolverError):
@@ -558,6 +596,7 @@ VARIABLES = (
     "revenue", "revenue_mean", "revenue_stderr", "revenue_ci_low", "revenue_ci_high",
     "difference_mean", "difference_stderr", "difference_ci_low", "difference_ci_high",
     "gap_percent", *ERROR_NAMES, "load_factor_mean", "solve_seconds", "simulate_seconds",
+    "compile_seconds",
 )
 
 
@@ -592,6 +631,7 @@ def _method_dataset(frame: _Frame, run: MethodRun, best: MethodRun | None, ref: 
         "load_factor_mean": np.full(m, nan),
         "solve_seconds": res.seconds if res is not None else nan,
         "simulate_seconds": run.simulate_seconds,
+        "compile_seconds": run.compile_seconds,
     })
     if res is not None and run.solver.tags.gives_bid_prices:
         if "bid_price_table" in res:
@@ -644,7 +684,13 @@ def _assemble(frame: _Frame, runs: Sequence[MethodRun]):
     ds = xr.concat(parts, dim="method", join="exact", data_vars="all", coords="minimal",
                    compat="identical")
     ds = ds.assign_coords(method=np.array([r.name for r in runs], dtype=object),
-                          kind=("method", np.array([r.kind for r in runs], dtype=object)))
+                          kind=("method", np.array([r.kind for r in runs], dtype=object)),
+                          control=("method", np.array(
+                              [r.solver.tags.control if r.solver is not None else ""
+                               for r in runs], dtype=object)),
+                          leg_name=("leg", np.array([leg.name or leg.id
+                                                     for leg in frame.network.legs],
+                                                    dtype=object)))
     if frame.visits is not None:
         v = frame.visits
         visit_vars = {
@@ -670,6 +716,21 @@ def v_inf_to_nan(a: np.ndarray) -> np.ndarray:
 
 
 # ---------------------------------------------------------------- the ranked table
+def _estimates(row: dict[str, Any], attrs: Mapping[str, Any]) -> dict[str, Any]:
+    """What a reader concludes from a row: whether its paired difference from the best policy
+    is significant (the 95% interval excludes 0), and its gap as an estimate with the interval
+    ``100 (ref - revenue CI) / ref`` (the yardstick's own error is not included)."""
+    low, high = row["difference_ci_low"], row["difference_ci_high"]
+    significant = None if low is None or high is None else bool(low > 0 or high < 0)
+    ref = float(attrs.get("reference_value", math.nan))
+    gap_low = gap_high = None
+    if math.isfinite(ref) and ref and row["revenue_ci_low"] is not None:
+        gap_low = 100.0 * (ref - row["revenue_ci_high"]) / ref
+        gap_high = 100.0 * (ref - row["revenue_ci_low"]) / ref
+    return {"difference_significant": significant, "gap_percent_ci_low": gap_low,
+            "gap_percent_ci_high": gap_high}
+
+
 def ranked(ds: xr.Dataset) -> list[dict[str, Any]]:
     """One row per method: simulated ones by mean revenue (best first), then bounds, then skipped."""
     rows = []
@@ -679,10 +740,12 @@ def ranked(ds: xr.Dataset) -> list[dict[str, Any]]:
                "reason": str(d["reason"].values), "check": str(d["check"].values),
                "warning": str(d["warning"].values)}
         for var in ("value", "value_stderr", "revenue_mean", "revenue_stderr", "revenue_ci_low",
-                    "revenue_ci_high", "difference_mean", "difference_stderr", "gap_percent",
-                    *ERROR_NAMES, "solve_seconds", "simulate_seconds"):
-            v = float(d[var].values)
+                    "revenue_ci_high", "difference_mean", "difference_stderr",
+                    "difference_ci_low", "difference_ci_high", "gap_percent",
+                    *ERROR_NAMES, "solve_seconds", "simulate_seconds", "compile_seconds"):
+            v = float(d[var].values) if var in d else math.nan
             row[var] = v if math.isfinite(v) else None
+        row.update(_estimates(row, ds.attrs))
         rows.append(row)
 
     def order(row: dict[str, Any]) -> tuple[int, float]:

@@ -76,29 +76,35 @@ def comparison_figure(
         raise InputError(f"capacities: seats left on leg {leg!r} must be in [1, {cap}], got {bad}")
 
     methods = ds.method.values.tolist()
-    colours = {m: plt.get_cmap("tab10")(k % 10) for k, m in enumerate(methods)}
-    colours.update({m: "black" for q, m in enumerate(methods)
-                    if str(ds["kind"].isel(method=q).values) == "optimum"})
+    colours = {m: style["color"] for m, style in method_styles(ds).items()}
     with plt.style.context("seaborn-v0_8-whitegrid"):
-        fig = plt.figure(figsize=(4.2 * max(len(capacities), 2), 8.4), layout="constrained")
+        fig = plt.figure(figsize=(4.6 * max(len(capacities), 2) + 2.5, 8.8),
+                         layout="constrained")
         grid = fig.add_gridspec(2, len(capacities), height_ratios=[1.1, 1.0])
         axes = [fig.add_subplot(grid[0, k]) for k in range(len(capacities))]
         for k, (ax, x) in enumerate(zip(axes, capacities, strict=True)):
-            _bid_price_panel(ax, ds, leg, int(x), colours)
+            _bid_price_panel(ax, ds, leg, int(x), method_styles(ds))
             if k:
                 ax.set_ylabel("")
         seen: dict[str, Any] = {}
         for ax in axes:  # one legend for the panels: every method once
             for handle, label in zip(*ax.get_legend_handles_labels(), strict=True):
                 seen.setdefault(label, handle)
+        nested = [m for q, m in enumerate(methods) if _control(ds, q) == "nested"
+                  and str(ds["status"].isel(method=q).values) == "ran"]
+        if nested:  # their control is nested limits: a bid-price line would misstate it
+            seen[f"{', '.join(nested)}: nested\nlimits, not drawn"] = plt.Line2D([], [],
+                                                                                 ls="none")
         fig.legend(list(seen.values()), list(seen), loc="outside right upper", fontsize=9,
                    frameon=True, title="bid prices")
         _revenue_panel(fig.add_subplot(grid[1, :]), ds, colours)
         against = {"optimum": "the optimum", "best bound": "the best upper bound"}.get(
             ds.attrs.get("reference_kind", ""), "each other")
-        title = f"{ds.attrs.get('scenario', '')}: methods against {against}"
+        title = (f"{ds.attrs.get('scenario', '')}: methods against {against}; bid prices on "
+                 f"leg {leg_label(ds, leg)}")
         sub = (f"{ds.attrs.get('paths', '?')} simulated paths, common random numbers, "
-               f"{ds.attrs.get('resolve', 0)} re-solves, seed {ds.attrs.get('seed', '?')}")
+               f"{ds.attrs.get('resolve', 0)} re-solves, seed {ds.attrs.get('seed', '?')};\nthe "
+               "exact curve stops where the optimal policy does not go (fewer than 5 visits)")
         fig.suptitle(f"{title}\n{sub}", fontsize=12)
         if path is not None:
             fig.savefig(path, dpi=dpi, format="png")
@@ -106,32 +112,71 @@ def comparison_figure(
     return fig
 
 
-def _bid_price_panel(ax: Any, ds: xr.Dataset, leg: str, seats: int, colours: dict) -> None:
+#: Line styles and markers cycled with the colours, so methods whose lines coincide (equal
+#: static bid prices) stay distinguishable: no two methods share colour, style and marker.
+LINE_STYLES = ("-", "--", "-.", ":")
+MARKERS = ("o", "s", "^", "D", "v", "P", "X", "<", ">", "*")
+EXACT_LABEL = "exact (optimal policy;\ndrawn where it goes)"
+
+
+def _control(ds: xr.Dataset, q: int) -> str:
+    return str(ds["control"].values[q]) if "control" in ds.coords else ""
+
+
+def method_styles(ds: xr.Dataset) -> dict[str, dict[str, Any]]:
+    """Colour, line style and marker of each method (the optimum in solid black)."""
+    import matplotlib.pyplot as plt
+
+    styles = {}
+    for k, m in enumerate(ds.method.values.tolist()):
+        if str(ds["kind"].values[k]) == "optimum":
+            styles[m] = {"color": "black", "ls": "-", "marker": None}
+        else:
+            styles[m] = {"color": plt.get_cmap("tab10")(k % 10),
+                         "ls": LINE_STYLES[k % len(LINE_STYLES)], "marker": MARKERS[k % 10]}
+    return styles
+
+
+def leg_label(ds: xr.Dataset, leg: str) -> str:
+    """``name (id)`` when the leg has a name, else its id."""
+    if "leg_name" in ds.coords:
+        name = str(ds["leg_name"].sel(leg=leg).values)
+        if name and name != leg:
+            return f"{name} ({leg})"
+    return leg
+
+
+def _bid_price_panel(ax: Any, ds: xr.Dataset, leg: str, seats: int, styles: dict) -> None:
     periods = ds.period.values
     kinds = [str(k) for k in ds["kind"].values]
     if "optimum" not in kinds and "exact_bid_price_table" in ds:  # the yardstick, not a row
         exact = ds["exact_bid_price_table"].sel(leg=leg, capacity=seats).values
         if np.isfinite(exact).any():
-            ax.plot(periods, exact, color="black", lw=2.4, label="exact (optimal policy)",
-                    zorder=5)
+            ax.plot(periods, exact, color="black", lw=2.4, label=EXACT_LABEL, zorder=5)
+    step = max(periods.size // 8, 1)
     for q, name in enumerate(ds.method.values.tolist()):
         d = ds.isel(method=q)
-        if str(d["status"].values) != "ran":
+        if str(d["status"].values) != "ran" or _control(ds, q) == "nested":
             continue
         table = d["bid_price_table"].sel(leg=leg, capacity=seats).values
         static = float(d["bid_price"].sel(leg=leg))
         kind = str(d["kind"].values)
+        style = styles[name]
+        # markers at staggered periods: a line lying under another still shows its marks
+        marks = {"marker": style["marker"], "markevery": (q * step // 5 % step, step),
+                 "ms": 5, "mfc": "white"}
         if kind == "optimum":
             if np.isfinite(table).any():
-                ax.plot(periods, table, color="black", lw=2.4, label=f"{name} (optimal policy)",
-                        zorder=5)
+                ax.plot(periods, table, color="black", lw=2.4, zorder=5,
+                        label=EXACT_LABEL.replace("exact", name, 1))
         elif np.isfinite(table).any():
-            ax.plot(periods, table, color=colours[name], lw=1.4, label=name)
+            ax.plot(periods, table, color=style["color"], ls=style["ls"], lw=1.4, label=name,
+                    **marks)
         elif math.isfinite(static):
-            ax.plot(periods, np.full(periods.size, static), color=colours[name], lw=1.2,
-                    ls="--", label=f"{name} (static)")
-    ax.set_title(f"leg {leg}, {seats} seat{'s' if seats != 1 else ''} left", fontsize=11)
-    ax.set_xlabel("period of the booking horizon (0 = opening)")
+            ax.plot(periods, np.full(periods.size, static), color=style["color"],
+                    ls=style["ls"], lw=1.4, label=f"{name} (static)", **marks)
+    ax.set_title(f"{seats} seat{'s' if seats != 1 else ''} left", fontsize=10)
+    ax.set_xlabel("period (0 = opening)")
     ax.set_ylabel("bid price (currency per seat)")
     ax.set_xlim(periods[0], periods[-1])
     ax.set_ylim(bottom=0)
@@ -149,7 +194,11 @@ def _revenue_panel(ax: Any, ds: xr.Dataset, colours: dict) -> None:
         err = [[mean - lo], [hi - mean]] if math.isfinite(lo) else None
         ax.errorbar(mean, k, xerr=err, fmt="o", color=colours[name], capsize=4, ms=6, lw=1.6)
         gap = float(d["gap_percent"])
-        note = f"{mean:,.0f}" + (f"  ({gap:+.1f}% gap)" if math.isfinite(gap) else "")
+        if str(d["kind"].values) == "optimum":
+            note = f"{mean:,.0f}  (optimal policy; estimates the DP value)"
+        else:
+            note = f"{mean:,.0f}" + (f"  (gap {gap:+.1f}%, estimate)" if math.isfinite(gap)
+                                     else "")
         ax.annotate(note, (hi if math.isfinite(hi) else mean, k), xytext=(6, 0),
                     textcoords="offset points", va="center", fontsize=8, zorder=6,
                     bbox={"boxstyle": "round,pad=0.15", "fc": "white", "ec": "none",

@@ -174,11 +174,14 @@ def infer_control(result: SolveResult) -> type[Control]:
 
 def make_policy(policy: Any, params: dict[str, Any] | None = None) -> PolicySource:
     """A policy source from a method or control name, a solver instance, a result or a source."""
-    from rmkit.methods.base import Solver, get_solver, load_all
+    from rmkit.methods.base import Solver, get_solver, is_method_name, load_all
 
     params = dict(params or {})
     if isinstance(policy, str):
         controls = load_controls()
+        if not is_method_name(policy) and policy not in policy_names():
+            raise InputError(f"policy: unknown policy {policy!r}; valid policies: "
+                             f"{', '.join(policy_names())} (see 'rmkit methods')")
         if policy not in load_all() and policy in controls and not controls[policy].needs_result:
             if params:
                 raise InputError(f"params: {policy!r} takes no parameters, got {sorted(params)}")

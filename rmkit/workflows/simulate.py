@@ -59,6 +59,7 @@ from rmkit.limits import MAX_SEED, memory_refusal, whole_rule
 from rmkit.model.demand import Arrivals, DemandModel, check_compatible
 from rmkit.model.network import Network, grid_strides
 from rmkit.workflows.policies import PolicySource, make_policy
+from rmkit.workflows.progress import Progress
 from rmkit.workflows.stats import CONFIDENCE, paired_differences, summarize
 
 #: Refuse runs whose per-path arrays would need more memory than this (bytes).
@@ -174,12 +175,15 @@ def replay(
     resolve_every_sale: bool = False,
     trace: bool = False,
     threads: int | None = None,
+    progress: Progress | None = None,
 ) -> Outcome:
     """Run one policy over given customers (the engine behind :func:`simulate`).
 
     With ``trace`` the outcome records the flat grid state (over the network's full capacities)
     at the start of every period of every path. ``threads`` caps the threads the replay kernel
     spreads paths over (default: numba's, one per core); the numbers do not depend on it.
+    ``progress(label, done, total)`` is told the (path, period) pairs replayed so far, about
+    ten times a second.
     """
     from rmkit.kernels.replay import loop_for
 
@@ -210,6 +214,7 @@ def replay(
     # reach the same (period, seats left) in different rounds and small controls repeat
     solved: dict[tuple[int, bytes], Any] = {}
     pending = np.arange(n_paths, dtype=np.int64)
+    told = time.perf_counter()
     while pending.size:
         groups = _groups(book, pending)
         todo = [(period, seats) for period, seats, _ in groups
@@ -235,6 +240,9 @@ def replay(
             loop_for(arrays, dem, idx.size, n_threads)(
                 arrays, dem, arrivals.customer, arrivals.uniform, idx, stop, every_sale, net,
                 book.arrays(), states, strides)
+            if progress is not None and time.perf_counter() - told > 0.1:
+                told = time.perf_counter()
+                progress(source.label, float(book.next_period.sum()), n_paths * n_periods)
         pending = np.flatnonzero(book.next_period < n_periods)
     summary = _summary(source)
     _warn_inexact(source.label, statuses, solves, summary)
@@ -361,6 +369,9 @@ def _run_attrs(outcome: Outcome, seed: int, paths: int, resolve: int, network: N
         "seed": int(seed),
         "paths": int(paths),
         "resolves": int(resolve),
+        # what happened, whatever was asked: controls that never re-solve (fcfs, a stored
+        # policy, a table) run from their one start
+        "resolves_done": len(outcome.resolve_periods) if len(outcome.resolve_periods) > 1 else 0,
         "resolve_periods": json.dumps(outcome.resolve_periods),
         "resolve_every_sale": int(outcome.every_sale),
         "solves": int(outcome.solves),
@@ -386,6 +397,7 @@ def simulate(
     resolve_every_sale: bool = False,
     params: Mapping[str, Any] | None = None,
     max_bytes: int = DEFAULT_MAX_BYTES,
+    progress: Progress | None = None,
 ):
     """Simulate one booking policy on ``paths`` request streams drawn with ``seed``.
 
@@ -405,6 +417,8 @@ def simulate(
         Also recompute ``bid_price`` and ``nested`` controls after every sale of a path.
     params
         Settings of the method when ``policy`` is a name.
+    progress
+        ``progress(label, done, total)`` callback (:mod:`rmkit.workflows.progress`).
 
     Returns
     -------
@@ -413,15 +427,27 @@ def simulate(
         who bought nothing, by type), ``seats_left`` and
         ``load_factor`` (path, leg), the summary ``revenue_mean``, ``revenue_stderr``,
         ``revenue_ci_low``, ``revenue_ci_high`` and ``load_factor_mean`` (leg); attrs record the
-        policy, seed, paths, resolves, number of solves, parameters (JSON) and rmkit version.
+        policy, seed, paths, resolves asked for (``resolves``) and done (``resolves_done``: 0 for
+        a control that never re-solves), number of solves, parameters (JSON), the seconds spent
+        compiling kernels (``compile_seconds``, not in ``seconds``), the warnings raised (JSON
+        ``{message: count}``; each distinct one is re-issued once) and the rmkit version.
     """
+    from rmkit.workflows.compiling import CompileWatch
+    from rmkit.workflows.warnings_log import as_attr, recorded
+
     _check_run(network, demand, paths, seed, resolve, max_bytes)
     source = make_policy(policy, dict(params or {}))
     arrivals = demand.sample_arrivals(int(paths), int(seed))
-    outcome = replay(network, demand, source, arrivals, seed=int(seed), resolve=int(resolve),
-                     resolve_every_sale=resolve_every_sale)
+    with recorded() as messages, CompileWatch() as compiling:
+        outcome = replay(network, demand, source, arrivals, seed=int(seed), resolve=int(resolve),
+                         resolve_every_sale=resolve_every_sale, progress=progress)
+    outcome.seconds -= compiling.seconds
+    outcome.solve_seconds = max(outcome.solve_seconds - compiling.seconds, 0.0)
+    for text in dict.fromkeys(messages):  # once each: the count is in the attrs
+        warnings.warn(text, RuntimeWarning, stacklevel=2)
     ds = _path_dataset(outcome, network, demand)
     ds.attrs.update(_run_attrs(outcome, seed, paths, resolve, network))
+    ds.attrs.update({"compile_seconds": float(compiling.seconds), "warnings": as_attr(messages)})
     return ds
 
 
