@@ -96,3 +96,14 @@ def test_bid_price_rule_accepts_what_the_nested_limits_accept(classes, law, seat
     by_price = fares[None, :] >= values[1:, None]
     by_limit = x[:, None] > np.concatenate([[0], levels])[None, :]
     np.testing.assert_array_equal(by_price, by_limit)
+
+
+def test_subnormal_means_and_zero_spread_give_finite_levels():
+    """Found by hypothesis: a subnormal mean rounds the merged fare below the next fare,
+    and sd = 0 turned ``0 x ndtri(<0)`` into NaN. Deterministic demand protects its mean."""
+    fares, sds = np.array([100.3, 100.1]), np.array([0.0, 0.0])
+    for means in (np.array([5e-324, 1.0]), np.array([4.0, 1.0])):
+        for levels in (emsr_a(fares, means, sds, "normal"), emsr_b(fares, means, sds, "normal")):
+            assert np.all(np.isfinite(levels))
+            assert levels[0] == means[0]
+    assert emsr_b(fares, np.array([5e-324, 1.0]), np.array([1.0, 1.0]), "normal")[0] == 0.0

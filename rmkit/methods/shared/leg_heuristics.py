@@ -170,7 +170,11 @@ def _level(law: str, mean: np.ndarray, std: np.ndarray | None, ratio: np.ndarray
     mean, ratio = np.broadcast_arrays(np.asarray(mean, float), np.asarray(ratio, float))
     if law == "normal":
         sd = np.broadcast_to(np.asarray(std, dtype=np.float64), mean.shape)
-        return np.maximum(mean + sd * ndtri(1.0 - ratio), 0.0)
+        # sd = 0 is deterministic demand: protect the mean while the ratio is below 1
+        # (0 x ndtri(0 or 1) would be NaN).
+        z = ndtri(1.0 - np.clip(ratio, 0.0, 1.0))
+        spread = np.where(sd > 0, sd * np.where(sd > 0, z, 0.0), np.where(ratio < 1.0, 0.0, -np.inf))
+        return np.maximum(mean + spread, 0.0)
     from scipy.stats import poisson
 
     y = np.nan_to_num(poisson.ppf(1.0 - ratio, mean), nan=0.0, posinf=0.0)
@@ -264,6 +268,9 @@ def _aggregate(f: np.ndarray, mu: np.ndarray, var: np.ndarray | None):
     s = np.cumsum(mu, axis=-1)
     rev = np.cumsum(mu * f, axis=-1)
     fbar = np.where(s > 0, rev / np.where(s > 0, s, 1.0), f)
+    # A demand-weighted mean lies between the merged fares; with subnormal means the
+    # division can round outside (e.g. below the next class's fare), so clip it back.
+    fbar = np.clip(fbar, f, np.maximum.accumulate(f, axis=-1))
     return s, None if var is None else np.cumsum(var, axis=-1), fbar
 
 
