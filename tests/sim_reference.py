@@ -231,24 +231,24 @@ def interpreted_kernels():
                 swapped.append((module, name, fn))
                 setattr(module, name, fn.py_func)
     try:
-        yield rmkit.kernels.replay.replay_paths
+        yield
     finally:
         for module, name, fn in swapped:
             setattr(module, name, fn)
 
 
-def kernel_both_ways(args_before_book: tuple, make_book, make_trace, strides: np.ndarray
-                     ) -> tuple[list, list]:
-    """Books (and traces) after :func:`rmkit.kernels.replay.replay_paths` ran compiled and
-    interpreted on the same inputs (``make_book()`` gives fresh seats, revenue, accepted, lost,
-    memo, next; ``make_trace()`` a fresh trace array)."""
-    from rmkit.kernels.replay import replay_paths
+def kernel_both_ways(args_before_book: tuple, make_book, make_trace, strides: np.ndarray,
+                     loop: str = "replay_paths") -> tuple[list, list]:
+    """Books (and traces) after the replay loop ``loop`` of :mod:`rmkit.kernels.replay` ran
+    compiled and interpreted on the same inputs (``make_book()`` gives fresh seats, revenue,
+    accepted, lost, memo, next; ``make_trace()`` a fresh trace array)."""
+    import rmkit.kernels.replay as kernels
 
     compiled, trace = make_book(), make_trace()
-    replay_paths(*args_before_book, tuple(compiled), trace, strides)
+    getattr(kernels, loop)(*args_before_book, tuple(compiled), trace, strides)
     plain, plain_trace = make_book(), make_trace()
-    with interpreted_kernels() as run_plain:
-        run_plain(*args_before_book, tuple(plain), plain_trace, strides)
+    with interpreted_kernels():
+        getattr(kernels, loop)(*args_before_book, tuple(plain), plain_trace, strides)
     return [*compiled, trace], [*plain, plain_trace]
 
 

@@ -135,7 +135,9 @@ def test_exact_bits_span_bytes_by_hand():
 # ---------------------------------------------------------------- kernels vs their py_func
 @pytest.mark.parametrize("control", sorted(load_controls()))
 @pytest.mark.parametrize("stop_after_sale", [False, True])
-def test_kernel_matches_its_py_func(control, stop_after_sale):
+@pytest.mark.parametrize("loop", ["replay_paths", "replay_paths_parallel"])
+def test_kernel_matches_its_py_func(control, stop_after_sale, loop):
+    """Both loops (one thread, paths over threads) against their own py_func."""
     from rmkit.workflows.simulate import grid_strides, kernel_network
 
     net, dem = random_problem(11, n_legs=3, max_capacity=3, n_products=10, n_periods=8)
@@ -155,7 +157,7 @@ def test_kernel_matches_its_py_func(control, stop_after_sale):
     outs = kernel_both_ways(
         (arrays, dem.kernel_data(), arrivals.customer, arrivals.uniform, paths, 7,
          stop_after_sale, kernel_network(net)), book, lambda: np.zeros((p, dem.n_periods), np.int64),
-        grid_strides(net.capacities))
+        grid_strides(net.capacities), loop)
     for a, b in zip(*outs, strict=True):
         np.testing.assert_array_equal(a, b)
     assert outs[0][5][[1, 4]].tolist() == [1, 1]  # paths not asked about are untouched
