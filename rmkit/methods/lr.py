@@ -98,7 +98,7 @@ KERNEL_THREADS = 1
 STALL_WINDOW = 100
 #: A simulator's re-solve (``Solver.resolve``) starts from the run's period-0 split and stops
 #: when the bid prices at its state have settled (RESOLVE_TOL of the highest fare over
-#: RESOLVE_WINDOW iterations) or after RESOLVE_ITERATIONS; see benchmarks/bench_lr_resolves.py
+#: RESOLVE_WINDOW iterations) or after RESOLVE_ITERATIONS; see ``benchmarks/bench_resolves.py lr-paired``
 #: for the revenue this costs against fully converged re-solves.
 RESOLVE_ITERATIONS = 60
 RESOLVE_TOL = 1e-3
