@@ -156,6 +156,18 @@ class FixedPolicy(_OneByOne):
         return self.result
 
 
+def assumption(source: Any) -> str:
+    """The independent-demand approximation a policy source was solved on (``""``: none): the
+    view's tag (:mod:`rmkit.methods.independent_view`), or the mark on a result it gave."""
+    solver = getattr(source, "solver", None)
+    if solver is not None:
+        return str(solver.tags.assumes_independent_demand)
+    result = getattr(source, "result", None)
+    if isinstance(result, SolveResult):
+        return str(result.payload.get("assumes_independent_demand", ""))
+    return ""
+
+
 def infer_control(result: SolveResult) -> type[Control]:
     """The control a result supports: its registered method's tag, else what its arrays allow."""
     from rmkit.methods.base import load_all
