@@ -169,12 +169,12 @@ def assumption(source: Any) -> str:
 
 
 def infer_control(result: SolveResult) -> type[Control]:
-    """The control a result supports: its registered method's tag, else what its arrays allow."""
-    from rmkit.methods.base import load_all
+    """The control a result supports: its method's tag (a registered method, or a view of one,
+    whose control is the wrapped method's), else what its arrays allow."""
+    from rmkit.methods.base import get_solver, is_method_name
 
-    registry = load_all()
-    if result.method in registry:
-        return get_control(registry[result.method].tags.control)
+    if is_method_name(result.method):  # a registered method or a view of one (dlp:independent)
+        return get_control(get_solver(result.method).tags.control)
     for control in load_controls().values():
         if control.needs_result and control.drives(result):
             return control
