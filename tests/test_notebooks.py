@@ -14,7 +14,7 @@ import pytest
 from tests.conftest import ROOT
 
 NOTEBOOKS = ROOT / "notebooks"
-NAMES = ["heuristics_vs_optimum", "bounds_and_policies_public"]
+NAMES = ["heuristics_vs_optimum", "bounds_and_policies_public", "choice_validation"]
 
 nbformat = pytest.importorskip("nbformat")
 jupytext = pytest.importorskip("jupytext")

@@ -122,6 +122,7 @@ def _pm(mean: float | None, low: float | None, high: float | None, spec: str = "
 
 def ranking_table(ds) -> tuple[Table, list[str]]:
     """The ranked table (CSV columns and the printed cells) and notes on skipped methods."""
+    from rmkit.methods.base import ASSUMES_INDEPENDENT
     from rmkit.workflows.compare import ranked
 
     attrs = ds.attrs
@@ -132,7 +133,7 @@ def ranking_table(ds) -> tuple[Table, list[str]]:
                "difference 95% high", "difference significant", "gap % (estimate)",
                "gap % 95% low", "gap % 95% high", "optimum or upper bound",
                "optimum or bound std. error", "bid-price error mean", "bid-price error max",
-               "solve seconds", "simulate seconds"]
+               "solve seconds", "simulate seconds", "demand assumption"]
     gap_head = "gap to optimum % (est.)" if ref_kind == "optimum" else "gap to best bound % (est.)"
     shown_columns = ["rank", "method", "kind", "revenue ± 95%", f"vs {best or 'best'} (paired)",
                      gap_head, "bid-price error mean / max", "optimum or bound", "seconds"]
@@ -148,7 +149,9 @@ def ranking_table(ds) -> tuple[Table, list[str]]:
                      None if optimum else r["gap_percent_ci_high"],
                      None if r["kind"] == "heuristic" else r["value"], r["value_stderr"],
                      r["bid_price_error_mean"], r["bid_price_error_max"], r["solve_seconds"],
-                     r["simulate_seconds"]])
+                     r["simulate_seconds"], r["label"]])
+        if r["label"]:
+            kind = f"{kind}; {ASSUMES_INDEPENDENT}"
         if r["status"] != "ran":
             shown.append(["-", r["method"], r["status"], *["-"] * 6])
             notes.append(f"{r['method']} {r['status']}: {r['reason']}")
@@ -207,6 +210,13 @@ def comparison_notes(ds, notes: list[str]) -> list[str]:
     ref = attrs["reference_kind"]
     best = attrs["best_policy"]
     out = list(notes)
+    viewed = [r for r in ranked(ds) if r["label"]]
+    if viewed:
+        names = ", ".join(f"{r['method']} ({r['assumes_independent_demand']})" for r in viewed)
+        out.append(f"assumes independent demand: {names}: run through the ':independent' view, "
+                   "which solves an independent-demand approximation of this scenario's demand; "
+                   "simulated against the scenario's own customers, and their values are no "
+                   "bounds")
     if best:
         out.append(f"vs {best}: each policy's revenue minus {best}'s on the same request streams "
                    "(paired, 95% interval); * = the interval excludes 0, a real difference")

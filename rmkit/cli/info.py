@@ -19,7 +19,7 @@ def summary(scenario) -> dict:
 
     net, dem = scenario.network, scenario.demand
     leg_demand = net.incidence @ dem.demand_to_come(0)
-    return {
+    out = {
         "scenario": scenario.name,
         "legs": net.n_legs,
         "products": net.n_products,
@@ -34,6 +34,10 @@ def summary(scenario) -> dict:
             for i, leg in enumerate(net.legs)
         },
     }
+    if dem.kind != "independent":  # customer types that choose (e.g. MNL segments)
+        out["demand_kind"] = dem.kind
+        out["segments"] = len(dem.customer_type_ids(net))
+    return out
 
 
 def run(args: argparse.Namespace) -> int:
@@ -45,7 +49,8 @@ def run(args: argparse.Namespace) -> int:
     net = scenario.network
     leg_demand = net.incidence @ scenario.demand.demand_to_come(0)
     print_table(
-        f"{s['scenario']}: {s['legs']} legs, {s['products']} products, {s['periods']} periods",
+        f"{s['scenario']}: {s['legs']} legs, {s['products']} products, {s['periods']} periods"
+        + (f", {s['segments']} {s['demand_kind']}-demand segments" if "segments" in s else ""),
         ["leg", "capacity", "expected seat requests", "demand factor"],
         [
             [leg.id, leg.capacity, float(leg_demand[i]), s["demand_factor"][leg.id]]

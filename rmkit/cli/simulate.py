@@ -66,6 +66,7 @@ def summary(ds, bound: tuple[str, float, float] | None, bound_name: str | None
         "resolves": int(a["resolves_done"]), "resolves_asked": int(a["resolves"]),
         "solves": int(a["solves"]), "seconds": float(a["seconds"]),
         "compile_seconds": float(a.get("compile_seconds", 0.0)),
+        "assumes_independent_demand": a.get("assumes_independent_demand") or None,
     }
     if bound is not None:
         kind, value, se = bound
@@ -97,6 +98,12 @@ def tables(ds, scenario, out: dict[str, Any]) -> list[Table]:
         row += [b["value"], b["gap"], b["gap_ci_low"], b["gap_ci_high"], b["gap_percent"]]
     formats = [None, ",.1f", ",.1f", ",.1f", ",.2f", ",d", "d", "d", ",d", ".2f",
                ",.1f", ",.1f", ",.1f", ",.1f", ".2f"]
+    if out["assumes_independent_demand"]:
+        from rmkit.methods.base import ASSUMES_INDEPENDENT
+
+        head.append("demand assumption")
+        row.append(f"{ASSUMES_INDEPENDENT} ({out['assumes_independent_demand']})")
+        formats = [*formats[:len(head) - 1], None]
     first = Table("summary", f"{scenario.name}: {out['policy']} ({out['control']} control), "
                   f"{out['paths']:,} paths, {out['resolves']} re-solves, seed {out['seed']}",
                   head, [row], formats)

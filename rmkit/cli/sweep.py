@@ -19,7 +19,8 @@ HELP = "run a grid of scenarios x methods x seeds on a local or remote dask clus
 EPILOG = """\
 grid layout (TOML):
   [sweep]      name = "...", seeds = [0, 1, 2] (or a count)
-  [[scenario]] files = ["paths or globs"]  |  generator = "hub-spoke" | "line", settings = {...}
+  [[scenario]] files = ["paths or globs"]  |  generator = "hub-spoke" | "line" |
+               "hub-spoke-choice", settings = {...}
   [[method]]   method = "dlp", params = {...}, label = "..."
   [[policy]]   method = "dlp", paths = 500, resolves = [0, 5], params = {...}
 Each finished cell is written to the store at once; rerun the same command to resume.
@@ -71,6 +72,16 @@ def refuse_scenario_file(path: str) -> None:
                      "(layout: rmkit sweep --help; example: examples/sweep_grid.toml)")
 
 
+def _kind(ds, q: int) -> str:
+    """The kind of method ``q``, labelled when it runs through the independent-demand view."""
+    from rmkit.methods.base import ASSUMES_INDEPENDENT
+
+    kind = str(ds["kind"].values[q])
+    approx = (str(ds["assumes_independent_demand"].values[q])
+              if "assumes_independent_demand" in ds.coords else "")
+    return f"{kind}; {ASSUMES_INDEPENDENT} ({approx})" if approx else kind
+
+
 def tables(ds, grid_name: str, report) -> list[Table]:
     """Cells by method, the method x scenario values, and the identical policies."""
     from rmkit.workflows.sweep import summary_by_method, value_table
@@ -83,7 +94,7 @@ def tables(ds, grid_name: str, report) -> list[Table]:
         f"{report.computed} computed now) in {report.seconds:.1f} s",
         ["method", "measure", "kind", "paths", "re-solves", "done", "failed",
          "mean seconds per cell"],
-        [[m, str(summary.measure.values[q]), str(summary.kind.values[q]),
+        [[m, str(summary.measure.values[q]), _kind(ds, q),
           int(ds["paths"].values[q]) if str(summary.measure.values[q]) == "policy" else None,
           int(ds["resolve"].values[q]) if str(summary.measure.values[q]) == "policy" else None,
           int(summary["done"].values[q]), int(summary["failed"].values[q]),

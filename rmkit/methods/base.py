@@ -42,6 +42,9 @@ class Tags:
     control: str = "bid_price"  # the booking control (rmkit.controls) it steers sales by; "": none
     reference: bool = False  # cheap and sure enough to solve as a yardstick (optimum or bound)
     needs_displacement: bool = False  # counts network fares from another method's bid prices
+    # the independent-demand approximation a view solves instead of the scenario's demand
+    # (rmkit.methods.independent_view; "" = the method solves the demand it is given)
+    assumes_independent_demand: str = ""
 
 
 @dataclass(frozen=True)
@@ -331,6 +334,17 @@ class Solver:
 
     def _solve(self, problem: Problem, params: dict[str, Any], seed: int | None) -> SolveOutput:
         raise NotImplementedError
+
+
+#: The label of results and rows computed through an independent-demand view.
+ASSUMES_INDEPENDENT = "assumes independent demand"
+
+
+def assumption_of(solver: Solver | type[Solver] | None) -> str:
+    """``"assumes independent demand (<approximation>)"`` for a method run through the
+    independent-demand view, else ``""``: how comparisons and sweeps label its rows."""
+    approximation = solver.tags.assumes_independent_demand if solver is not None else ""
+    return f"{ASSUMES_INDEPENDENT} ({approximation})" if approximation else ""
 
 
 def kind_of(solver: Solver | type[Solver]) -> str:

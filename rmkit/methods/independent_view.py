@@ -23,7 +23,9 @@ The view is one wrapper, named in the method name: ``get_solver("dlp:independent
 ``"dlp:independent"``, its ``parameters`` include ``approximation``, its message opens with
 "assumes independent demand" and ``payload["assumes_independent_demand"]`` names the
 approximation; its tags drop ``exact``/``upper_bound`` (a bound on the approximation is none on
-the real problem) and say heuristic.
+the real problem), say heuristic and carry ``assumes_independent_demand`` (the approximation), so
+``compare``, ``simulate`` and ``sweep`` label its rows "assumes independent demand"
+(:func:`rmkit.methods.base.assumption_of`).
 """
 
 from __future__ import annotations
@@ -93,8 +95,10 @@ class IndependentView(Solver):
 
     @property  # type: ignore[override]
     def tags(self) -> Tags:  # type: ignore[override]
+        approximation = self._settings.get("approximation", APPROXIMATION_PARAM.default)
         return dataclasses.replace(self.inner.tags, exact=False, upper_bound=False,
-                                   heuristic=True, reference=False)
+                                   heuristic=True, reference=False,
+                                   assumes_independent_demand=str(approximation))
 
     @property  # type: ignore[override]
     def demand_kinds(self) -> tuple[str, ...]:  # type: ignore[override]

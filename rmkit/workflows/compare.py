@@ -57,7 +57,7 @@ import numpy as np
 
 from rmkit._version import __version__
 from rmkit.errors import InputError, SolverError
-from rmkit.methods.base import kind_of
+from rmkit.methods.base import ASSUMES_INDEPENDENT, kind_of
 from rmkit.model.demand import Arrivals, DemandModel, check_compatible
 from rmkit.model.network import Network
 from rmkit.results import SolveResult
@@ -112,8 +112,11 @@ class MethodRun:
 
 
 def select_methods(methods: Sequence[str] | str | None) -> list[str]:
-    """Method names to run (default: every registered one); an unknown name lists the valid ones."""
-    from rmkit.methods.base import load_all
+    """Method names to run (default: every registered one); an unknown name lists the valid ones.
+
+    A view of a method (``"dlp:independent"``, :func:`rmkit.methods.base.register_view`) is a
+    method name too."""
+    from rmkit.methods.base import VIEWS, is_method_name, load_all
 
     registry = load_all()
     if methods is None:
@@ -124,9 +127,10 @@ def select_methods(methods: Sequence[str] | str | None) -> list[str]:
     if not names:
         raise InputError("methods: the list is empty; give at least one method name")
     for name in names:
-        if name not in registry:
+        if not is_method_name(name):
             raise InputError(
                 f"methods: unknown method {name!r}; valid methods: {', '.join(sorted(registry))}"
+                + "".join(f"; views: '<method>:{v}'" for v in sorted(VIEWS))
             )
     return names
 
@@ -459,8 +463,11 @@ def compare(
     -------
     xarray.Dataset
         Dims ``method``, ``leg``, ``product``, ``period``, ``capacity``, ``path`` and ``visit``;
-        variables are listed in :data:`VARIABLES`. Attrs: scenario, seed, paths, resolve,
-        parameters of every method (JSON), reference, best policy, rmkit version.
+        variables are listed in :data:`VARIABLES`. Coordinates along ``method``: ``kind``,
+        ``control`` and ``assumes_independent_demand`` (the approximation of a method run
+        through the independent-demand view, e.g. ``"all_offered"``; ``""`` otherwise). Attrs:
+        scenario, seed, paths, resolve, parameters of every method (JSON), reference, best
+        policy, rmkit version.
     """
     from rmkit.limits import MAX_SEED, whole_rule
     from rmkit.methods.base import non_negative_int, positive_int
@@ -688,6 +695,9 @@ def _assemble(frame: _Frame, runs: Sequence[MethodRun]):
                           control=("method", np.array(
                               [r.solver.tags.control if r.solver is not None else ""
                                for r in runs], dtype=object)),
+                          assumes_independent_demand=("method", np.array(
+                              [r.solver.tags.assumes_independent_demand
+                               if r.solver is not None else "" for r in runs], dtype=object)),
                           leg_name=("leg", np.array([leg.name or leg.id
                                                      for leg in frame.network.legs],
                                                     dtype=object)))
@@ -739,6 +749,10 @@ def ranked(ds: xr.Dataset) -> list[dict[str, Any]]:
         row = {"method": name, "kind": str(d["kind"].values), "status": str(d["status"].values),
                "reason": str(d["reason"].values), "check": str(d["check"].values),
                "warning": str(d["warning"].values)}
+        approximation = (str(d["assumes_independent_demand"].values)
+                         if "assumes_independent_demand" in d.coords else "")
+        row["assumes_independent_demand"] = approximation or None
+        row["label"] = f"{ASSUMES_INDEPENDENT} ({approximation})" if approximation else ""
         for var in ("value", "value_stderr", "revenue_mean", "revenue_stderr", "revenue_ci_low",
                     "revenue_ci_high", "difference_mean", "difference_stderr",
                     "difference_ci_low", "difference_ci_high", "gap_percent",

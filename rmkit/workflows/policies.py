@@ -156,13 +156,25 @@ class FixedPolicy(_OneByOne):
         return self.result
 
 
-def infer_control(result: SolveResult) -> type[Control]:
-    """The control a result supports: its registered method's tag, else what its arrays allow."""
-    from rmkit.methods.base import load_all
+def assumption(source: Any) -> str:
+    """The independent-demand approximation a policy source was solved on (``""``: none): the
+    view's tag (:mod:`rmkit.methods.independent_view`), or the mark on a result it gave."""
+    solver = getattr(source, "solver", None)
+    if solver is not None:
+        return str(solver.tags.assumes_independent_demand)
+    result = getattr(source, "result", None)
+    if isinstance(result, SolveResult):
+        return str(result.payload.get("assumes_independent_demand", ""))
+    return ""
 
-    registry = load_all()
-    if result.method in registry:
-        return get_control(registry[result.method].tags.control)
+
+def infer_control(result: SolveResult) -> type[Control]:
+    """The control a result supports: its method's tag (a registered method, or a view of one,
+    whose control is the wrapped method's), else what its arrays allow."""
+    from rmkit.methods.base import get_solver, is_method_name
+
+    if is_method_name(result.method):  # a registered method or a view of one (dlp:independent)
+        return get_control(get_solver(result.method).tags.control)
     for control in load_controls().values():
         if control.needs_result and control.drives(result):
             return control

@@ -98,6 +98,7 @@ class Outcome:
     resolve_periods: list[int] = field(default_factory=list)
     statuses: dict[str, int] = field(default_factory=dict)
     trace: np.ndarray | None = None
+    assumes_independent_demand: str = ""  # the view's approximation (rmkit.methods.base.Tags)
     summary: str = ""
 
 
@@ -246,9 +247,12 @@ def replay(
         pending = np.flatnonzero(book.next_period < n_periods)
     summary = _summary(source)
     _warn_inexact(source.label, statuses, solves, summary)
+    from rmkit.workflows.policies import assumption
+
     return Outcome(
         label=source.label,
         control=control.name,
+        assumes_independent_demand=assumption(source),
         parameters=dict(source.parameters),
         revenue=book.revenue,
         accepted=book.accepted,
@@ -366,6 +370,8 @@ def _run_attrs(outcome: Outcome, seed: int, paths: int, resolve: int, network: N
     return {
         "policy": outcome.label,
         "control": outcome.control,
+        # the approximation of a policy solved through the independent-demand view; "" = none
+        "assumes_independent_demand": outcome.assumes_independent_demand,
         "seed": int(seed),
         "paths": int(paths),
         "resolves": int(resolve),

@@ -21,7 +21,8 @@ def open_sweep(store: str | Path, *, paths: bool = False):
     or a solver's note) and ``solver_status`` (the solver's status of a value cell); method
     coordinates ``measure`` (``value``: the solver's own value; ``policy``: its simulated
     revenue), ``kind`` (the solver's kind: optimum, upper bound or heuristic, as in ``compare``),
-    ``solver``, ``paths`` and ``resolve``. With ``paths=True`` the
+    ``assumes_independent_demand`` (the approximation of a method run through the
+    independent-demand view, ``""`` otherwise), ``solver``, ``paths`` and ``resolve``. With ``paths=True`` the
     per-path revenue of policy cells is added along a ``path`` dim (NaN-padded).
 
     Select methods with a dict, ``ds.sel({"method": "dlp"})``: ``method`` is also a keyword of
@@ -58,9 +59,10 @@ def open_sweep(store: str | Path, *, paths: bool = False):
             revenue[idx] = rec["revenue"]
     from rmkit import schema
     from rmkit._version import __version__
-    from rmkit.methods.base import REGISTRY, kind_of, load_all
+    from rmkit.methods.base import get_solver, is_method_name, kind_of
 
-    load_all()
+    solvers = {m["method"]: get_solver(m["method"]) if is_method_name(m["method"]) else None
+               for m in meth}
     data: dict[str, Any] = dict(num)
     data["status"] = status.astype(str)
     data["error"] = error.astype(str)
@@ -76,8 +78,11 @@ def open_sweep(store: str | Path, *, paths: bool = False):
         "method": [m["label"] for m in meth],
         "seed": np.asarray(seeds, dtype=np.int64),
         "measure": ("method", [m["kind"] for m in meth]),
-        "kind": ("method", [kind_of(REGISTRY[m["method"]]) if m["method"] in REGISTRY else ""
+        "kind": ("method", [kind_of(solvers[m["method"]]) if solvers[m["method"]] else ""
                             for m in meth]),
+        "assumes_independent_demand": ("method", [
+            solvers[m["method"]].tags.assumes_independent_demand if solvers[m["method"]] else ""
+            for m in meth]),
         "solver": ("method", [m["method"] for m in meth]),
         "paths": ("method", np.asarray([m["paths"] for m in meth], dtype=np.int64)),
         "resolve": ("method", np.asarray([m["resolve"] for m in meth], dtype=np.int64)),
