@@ -50,6 +50,7 @@ def solve_sparse_lp(
     *,
     solver: str = "ipm",
     time_limit: float | None = None,
+    presolve: bool = True,
 ) -> SparseLPSolution:
     """Minimise ``cost'y`` s.t. ``row_lower <= matrix y <= row_upper``, ``col_lower <= y <= col_upper``.
 
@@ -73,6 +74,8 @@ def solve_sparse_lp(
         return _solve_clarabel(cost, csc, row_lower, row_upper, col_lower, col_upper, time_limit)
     h = quiet_highs()
     h.setOptionValue("solver", solver)
+    if not presolve:
+        h.setOptionValue("presolve", "off")
     if time_limit is not None:
         h.setOptionValue("time_limit", float(time_limit))
     lp = highspy.HighsLp()
