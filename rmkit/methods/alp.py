@@ -63,7 +63,8 @@ gives the same values on rm_200_4_1.0_4.0 and rm_200_4_1.6_8.0.)
 Bid prices: the value of a seat of leg i for a request in period t is ``v_{t+1,i}`` (the
 approximation is linear in x); ``bid_price_table[t, x, i] = v_{t+1,i}`` for ``1 <= x <= c_i``,
 ``+inf`` at ``x = 0``, NaN above the leg's capacity. They depend on the period, not on the
-seats left.
+seats left. The policy is Adelman's: these dynamic bid prices from one solve steer the whole
+horizon (control ``period_table``, not re-solved; see :mod:`rmkit.controls.period_table`).
 
 Published check: Topaloglu (2009), Table 2, column "LV" reports this bound for the six 4-spoke
 200-period instances; the compact LP reproduces every one to rounding (tests/test_bounds.py).
@@ -130,7 +131,7 @@ class AffineALP(Solver):
     """Affine approximate LP (Adelman 2007) in the compact form of Tong & Topaloglu (2014)."""
 
     name = "alp"
-    tags = Tags(upper_bound=True, capacity_dependent=False, control="table", reference=True)
+    tags = Tags(upper_bound=True, capacity_dependent=False, control="period_table", reference=True)
     citation = (
         "D. Adelman (2007), Dynamic bid prices in revenue management, Operations Research "
         "55(4):647-661; H. Tong and H. Topaloglu (2014), On the approximate linear programming "
