@@ -79,7 +79,6 @@ def gap_table(ds: xr.Dataset) -> xr.Dataset:
     """The gap table of a sweep Dataset (see the module docstring): dims ``scenario`` and,
     for every method's mean value over seeds, ``method`` (``value``); attrs hold the median and
     the maximum gap and where the maximum is."""
-    import xarray as xr
 
     from rmkit import schema
     from rmkit.workflows.stats import gap_estimate
