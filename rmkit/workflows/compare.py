@@ -131,7 +131,7 @@ def select_methods(methods: Sequence[str] | str | None) -> list[str]:
 
     registry = load_all()
     if methods is None:
-        return sorted(registry)
+        return sorted(name for name, cls in registry.items() if cls.by_default)
     if isinstance(methods, str):
         methods = [m.strip() for m in methods.split(",") if m.strip()]
     names = list(dict.fromkeys(methods))
@@ -396,7 +396,8 @@ def simulate_runs(
             if r.status == "ran" and r.result is not None and r.solver.tags.control]
     for k, run in enumerate(todo):
         # Solved once from the start: replay that result (no second solve); else re-solve.
-        policy = run.result if resolve <= 1 else run.solver
+        own = run.solver.policy_resolves() > 1  # a policy defined with its own re-solves
+        policy = run.result if resolve <= 1 and not own else run.solver
         started = time.perf_counter()
         try:
             with warnings.catch_warnings():  # counted in the simulation's attrs instead
