@@ -90,5 +90,6 @@ def test_dlp_threshold_offers_what_the_lp_accepts_and_respects_capacity():
 
 
 def test_dlp_threshold_bad_threshold_gets_the_one_message():
-    with pytest.raises(InputError, match=r"'threshold' parameter of dlp-threshold must be a number in \(0, 1\]"):
+    rule = r"'threshold' parameter of dlp-threshold must be a number in \(0, 1\]"
+    with pytest.raises(InputError, match=rule):
         get_solver("dlp-threshold", threshold=1.5).check_params()
