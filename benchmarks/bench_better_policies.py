@@ -20,7 +20,13 @@ Configurations:
 * ``dpd`` re-solved 5, 20, 50 times;
 * ``dlp-threshold`` (Bumpensanti & Wang 2020, Management Science 66(7)) re-solved 5, 50 and 200
   (every period) times;
-* ``dlp`` bid prices re-solved 5 times, for contrast.
+* ``dlp`` bid prices re-solved 5 times, for contrast;
+* ``lr-rollout`` (one-step rollout on the ``lr`` table: :mod:`rmkit.controls.rollout`) re-solved
+  5 and 20 times with its defaults (64 streams, z = 2), and the plain rollout (z = 0) for
+  contrast.
+
+``lr r50`` is the registered ``lr-frequent`` (50 re-solves) and ``lr-rollout r5`` the registered
+``lr-rollout`` under the published 5 re-solves.
 
 Results are appended to ``--out`` (JSON, one record per instance and configuration) as they come,
 so a stopped run keeps what it finished; ``--only`` runs some configurations. The machine is
@@ -57,6 +63,9 @@ CONFIGS = (
     ("dlp-threshold r50", "dlp-threshold", 50, {}),
     ("dlp-threshold r200", "dlp-threshold", 200, {}),
     ("dlp r5", "dlp", 5, {}),
+    ("lr-rollout r5", "lr-rollout", 5, {}),
+    ("lr-rollout r5 z0", "lr-rollout", 5, {"z": 0.0}),
+    ("lr-rollout r20", "lr-rollout", 20, {}),
 )
 
 

@@ -17,7 +17,7 @@ from rmkit.errors import InputError
 #: Control name -> class.
 CONTROLS: dict[str, type[Control]] = {}
 #: Modules of the controls rmkit ships.
-BUNDLED = ("fcfs", "bid_price", "table", "nested", "decisions", "cdlp_sets", "set_max")
+BUNDLED = ("fcfs", "bid_price", "table", "nested", "decisions", "cdlp_sets", "set_max", "rollout")
 _loaded = False
 
 
