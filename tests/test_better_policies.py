@@ -93,3 +93,38 @@ def test_dlp_threshold_bad_threshold_gets_the_one_message():
     rule = r"'threshold' parameter of dlp-threshold must be a number in \(0, 1\]"
     with pytest.raises(InputError, match=rule):
         get_solver("dlp-threshold", threshold=1.5).check_params()
+
+
+def test_lr_rollout_with_overwhelming_z_sells_exactly_like_lr():
+    """The rollout keeps the lr table's decision unless its evidence is z standard errors against
+    it: with z huge it never overturns one, so it sells exactly as lr does, path by path."""
+    net, dem = small_problem()
+    lr = _quiet(simulate, net, dem, "lr", paths=300, seed=4, resolve=3)
+    same = _quiet(simulate, net, dem, "lr-rollout", paths=300, seed=4, resolve=3,
+                  params={"z": 1e9, "samples": 8})
+    np.testing.assert_array_equal(same["revenue"].values, lr["revenue"].values)
+
+
+def test_lr_rollout_improves_on_lr_and_stays_under_the_optimum():
+    """Policy improvement, sampled: on the small problem the rollout earns clearly more than
+    its base policy (paired, common customers) and no more than the exact optimum allows."""
+    from rmkit.workflows.stats import paired_differences
+
+    net, dem = small_problem()
+    lr = _quiet(simulate, net, dem, "lr", paths=1000, seed=1)
+    roll = _quiet(simulate, net, dem, "lr-rollout", paths=1000, seed=1)
+    d = paired_differences(roll["revenue"].values[None, :], lr["revenue"].values[None, :])
+    assert d.ci_low[0, 0] > 0
+    optimum = get_solver("exact").solve(net, dem).value
+    assert float(roll["revenue_mean"]) <= optimum + 3 * float(roll["revenue_stderr"])
+
+
+def test_lr_rollout_streams_are_its_own():
+    net, dem = small_problem()
+    res = _quiet(get_solver("lr-rollout", samples=5).solve, net, dem, seed=0)
+    streams = res.payload["rollout_streams"]
+    assert streams.shape == (5, dem.n_periods) and streams.dtype == np.int32
+    assert not np.array_equal(streams, dem.sample_arrivals(5, 0).customer)
+    assert res.value == pytest.approx(_quiet(get_solver("lr").solve, net, dem).value)
+    with pytest.raises(InputError, match="'z' parameter of lr-rollout"):
+        get_solver("lr-rollout", z=-1).check_params()
