@@ -175,9 +175,10 @@ def gap_rows(table: xr.Dataset) -> list[list[Any]]:
 def gap_figure(table: xr.Dataset, path: str | Path | None = None, *, dpi: int = 150):
     """The gap per scenario with its 95% interval, coloured by the best policy, and the median
     and maximum as lines."""
-    from rmkit.workflows.figures import _pyplot, _save
+    import matplotlib
 
-    plt = _pyplot()
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
     names = [str(s) for s in table.scenario.values]
     gap = table["gap_percent"].values
     low, high = table["gap_percent_ci_low"].values, table["gap_percent_ci_high"].values
@@ -202,7 +203,10 @@ def gap_figure(table: xr.Dataset, path: str | Path | None = None, *, dpi: int = 
         ax.set_title(f"{table.attrs.get('name') or 'sweep'}: best policy vs best bound, "
                      "95% intervals", fontsize=11)
         ax.legend(fontsize=8, loc="upper left")
-    return _save(fig, path, dpi)
+    if path is not None:
+        fig.savefig(path, dpi=dpi, format="png")
+    plt.close(fig)
+    return fig
 
 
 def write_gap_table(table: xr.Dataset, prefix: str | Path) -> dict[str, Path]:
