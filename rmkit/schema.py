@@ -100,6 +100,16 @@ VARIABLES: dict[str, VariableSpec] = {
     "gap": _V((), CURRENCY, "bound - mean revenue"),
     "gap_percent": _V((), "%", "(bound or optimum - mean revenue) / bound or optimum x 100"),
     "gap_ci_low": _V((), CURRENCY, "95% interval of the gap, low end"),
+    "gap_percent_stderr": _V((), "%", "standard error of gap_percent: the policy's sampling error "
+                             "combined with a sampled bound's (paired on common streams where "
+                             "it can be)"),
+    "gap_percent_ci_low": _V((), "%", "95% interval of gap_percent, low end"),
+    # ---- a sweep's gap table (rmkit.workflows.sweep.gaps)
+    "bound_method": _V((), "", "the method that gave the tightest bound (or the optimum)"),
+    "policy_method": _V((), "", "the policy with the highest mean simulated revenue"),
+    "gap_pairing": _V((), "", "how a sampled bound's error entered the gap's interval: "
+                      "deterministic bound, independent, or paired"),
+    "gap_percent_ci_high": _V((), "%", "95% interval of gap_percent, high end"),
     "gap_ci_high": _V((), CURRENCY, "95% interval of the gap, high end"),
     # ---- what a comparison adds (rmkit.workflows.compare)
     "status": _V((), "", "what became of it: ran, skipped or failed (a cell: done, error, missing)"),

@@ -46,6 +46,10 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         "unauthenticated page; off by default)")
     parser.add_argument("--plot", default=None,
                         help="draw the method x scenario panel to FILE.png")
+    parser.add_argument("--gap-table", default=None, metavar="PREFIX",
+                        help="write the certified-gap table (per scenario: the tightest bound, "
+                        "the best policy, the gap with its 95%% interval; then the median and "
+                        "the maximum) to PREFIX.nc, PREFIX.csv and PREFIX.png")
     add_csv(parser)
     add_json(parser)
 
@@ -114,6 +118,36 @@ def tables(ds, grid_name: str, report) -> list[Table]:
     return [cells, matrix, twins] if same else [cells, matrix]
 
 
+GAP_KEYS = ("instance", "best_bound", "bound", "bound_stderr", "best_policy", "revenue_mean",
+            "revenue_stderr", "gap_percent", "gap_percent_ci_low", "gap_percent_ci_high",
+            "gap_percent_stderr", "pairing")
+GAP_NOTE = ("gap %: 100 (best bound - best policy's mean revenue) / best bound, 95% interval; a "
+            "sampled bound's standard error is combined with the policy's in quadrature (its "
+            "streams differ from the policies' in a sweep); the true gap to the optimum is "
+            "smaller")
+
+
+def check_gap_prefix(prefix: str) -> None:
+    """The three gap-table files must be writable before any cell runs."""
+    from rmkit.files import check_output
+
+    base = Path(prefix)
+    if base.suffix in (".nc", ".csv", ".png"):
+        base = base.with_suffix("")
+    for suffix in (".nc", ".csv", ".png"):
+        check_output(base.with_name(base.name + suffix), "--gap-table", (suffix,))
+
+
+def gap_print_table(gaps) -> Table:
+    """The gap table as printed (and as the JSON rows)."""
+    from rmkit.workflows.sweep.gaps import CSV_COLUMNS, gap_rows
+
+    return Table("gaps", "certified gap: the best policy against the tightest bound (95% "
+                 "interval)", list(CSV_COLUMNS), gap_rows(gaps),
+                 [None, None, ",.1f", ".1f", None, ",.1f", ".1f", ".2f", ".2f", ".2f", ".2f",
+                  None])
+
+
 def run(args: argparse.Namespace) -> int:
     from rmkit.errors import InputError
     from rmkit.files import check_output
@@ -130,6 +164,8 @@ def run(args: argparse.Namespace) -> int:
     check_table_target(args.csv)
     if args.plot is not None:
         check_output(args.plot, "--plot", (".png",))
+    if args.gap_table is not None:
+        check_gap_prefix(args.gap_table)
     refuse_scenario_file(args.grid)
     grid = load_grid(args.grid)
     store = Path(args.out) if args.out else default_store(args.grid)
@@ -150,6 +186,12 @@ def run(args: argparse.Namespace) -> int:
         from rmkit.workflows.figures import sweep_figure
 
         write_atomically(args.plot, lambda tmp: sweep_figure(ds, tmp), "--plot")
+    gaps = None
+    if args.gap_table:
+        from rmkit.workflows.sweep import gap_table, write_gap_table
+
+        gaps = gap_table(ds)
+        gap_files = write_gap_table(gaps, args.gap_table)
     if args.json:
         emit_json({
             "store": str(store), "combined": str(store / "sweep.nc"), "cells": report.total,
@@ -164,6 +206,12 @@ def run(args: argparse.Namespace) -> int:
             "failures": [dict(zip(("scenario", "method", "seed", "error"), f, strict=True))
                          for f in failures],
             "csv": written, "plot": args.plot,
+            "gap_table": None if gaps is None else {
+                "files": {k: str(v) for k, v in gap_files.items()},
+                "median": gaps.attrs["gap_median"], "maximum": gaps.attrs["gap_max"],
+                "maximum_at": gaps.attrs["gap_max_scenario"],
+                "rows": [dict(zip(GAP_KEYS, r, strict=True)) for r in gap_print_table(gaps).rows],
+            },
         })
         return 1 if failures else 0
     matrix = found[1]
@@ -178,7 +226,10 @@ def run(args: argparse.Namespace) -> int:
     notes = [f"store: {store}  (open with rmkit.open_sweep; combined file sweep.nc)"]
     notes += [f"{label} written to {target}" for label, target in
               (("figure", args.plot), ("tables", ", ".join(written))) if target]
-    print_tables(found, notes)
+    if gaps is not None:
+        notes.append(GAP_NOTE)
+        notes.append("gap table written to " + ", ".join(str(p) for p in gap_files.values()))
+    print_tables(found + ([gap_print_table(gaps)] if gaps is not None else []), notes)
     for scen, meth, seed, err in failures[:10]:
         print(f"failed: {scen} / {meth} / seed {seed}: {err}", file=sys.stderr)
     if len(failures) > 10:

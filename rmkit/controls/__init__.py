@@ -18,7 +18,7 @@ from rmkit.errors import InputError
 CONTROLS: dict[str, type[Control]] = {}
 #: Modules of the controls rmkit ships.
 BUNDLED = ("fcfs", "bid_price", "table", "period_table", "nested", "decisions", "cdlp_sets",
-           "set_max")
+           "set_max", "rollout")
 _loaded = False
 
 

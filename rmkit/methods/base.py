@@ -152,6 +152,14 @@ class Solver:
     demand_kinds: ClassVar[tuple[str, ...]] = ("independent",)
     #: Error raised when :meth:`accepts` refuses a problem (a size refusal sets ProblemTooLargeError).
     refusal: ClassVar[type[InputError]] = InputError
+    #: Whether "every method" (compare without --methods, the demo) includes it; variants whose
+    #: policy is costly to simulate are named explicitly instead.
+    by_default: ClassVar[bool] = True
+
+    def policy_resolves(self) -> int:
+        """Re-solves the method's policy is defined with: the simulator re-solves it at no fewer
+        equally spaced periods than this, whatever it is asked (0: as asked)."""
+        return 0
 
     def __init__(self, **settings: Any) -> None:
         unknown = sorted(set(settings) - set(self.params))

@@ -95,7 +95,12 @@ from rmkit.methods.base import (
     positive_int,
     register,
 )
-from rmkit.methods.rlp import at_least_two, check_sample_memory, sample_mean_and_stderr
+from rmkit.methods.rlp import (
+    at_least_two,
+    check_sample_memory,
+    sample_mean_and_stderr,
+    simulator_streams,
+)
 from rmkit.methods.shared.leg_dp import network_leg_values, product_legs, value_at
 
 
@@ -214,5 +219,8 @@ class InformationRelaxation(Solver):
             variables={"value": np.float64(value), "value_stderr": np.float64(stderr)},
             message=(f"mean of {best.size} penalised path bounds; LR bound of the penalty "
                      f"{lr_value:.6g}; {how}"),
-            payload={"path_values": best, "exact_paths": agreed, "lr_value": lr_value},
+            payload={"path_values": best, "exact_paths": agreed, "lr_value": lr_value,
+                     # path k is path k of the simulator's streams with this seed: compare
+                     # pairs the gap of a policy simulated with the same seed on them
+                     **({"paths_seed": int(seed)} if simulator_streams(problem, seed) else {})},
         )

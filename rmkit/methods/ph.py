@@ -27,7 +27,13 @@ import numpy as np
 
 from rmkit.methods.base import Param, Problem, SolveOutput, Solver, Tags, register
 from rmkit.methods.dlp import TIME_LIMIT_RULE
-from rmkit.methods.rlp import at_least_two, batch_failure, sample_mean_and_stderr, solve_sampled_lps
+from rmkit.methods.rlp import (
+    at_least_two,
+    batch_failure,
+    sample_mean_and_stderr,
+    simulator_streams,
+    solve_sampled_lps,
+)
 from rmkit.methods.shared.network_lp import time_limit_ok
 
 
@@ -63,5 +69,7 @@ class PerfectHindsight(Solver):
             variables={"value": np.float64(value), "value_stderr": np.float64(stderr)},
             status="optimal_inaccurate" if inaccurate else "optimal",
             message=f"mean of {batch.values.size} sampled perfect-hindsight LP values",
-            payload={"iterations": batch.iterations},
+            payload={"iterations": batch.iterations,
+                     "path_values": np.asarray(batch.values, dtype=np.float64),
+                     **({"paths_seed": int(seed)} if simulator_streams(problem, seed) else {})},
         )

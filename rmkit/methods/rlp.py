@@ -69,6 +69,21 @@ def solve_sampled_lps(
     return model.solve_many(problem.capacity, draws.astype(np.float64), duals=duals)
 
 
+def simulator_streams(problem: Problem, seed: int | None) -> bool:
+    """Whether sample k of ``sample_streams(K, seed)`` from the problem's period is the request
+    stream of path k of the simulator's ``sample_arrivals(N, seed)``: then a sampled bound's
+    per-path values (payload ``path_values``, with ``paths_seed``) pair with a policy simulated
+    with the same seed."""
+    if seed is None or problem.period != 0:
+        return False
+    demand = problem.demand
+    try:
+        return bool(np.array_equal(demand.sample_streams(2, int(seed)),
+                                   demand.sample_arrivals(2, int(seed)).customer))
+    except (AttributeError, NotImplementedError):
+        return False
+
+
 def sample_mean_and_stderr(values: np.ndarray) -> tuple[float, float]:
     return float(values.mean()), float(values.std(ddof=1) / np.sqrt(values.size))
 

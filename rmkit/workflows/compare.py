@@ -15,6 +15,20 @@
   the optimal policy actually goes (below), and the revenue gap to the optimum in percent (to the
   best upper bound otherwise).
 
+The certified gap
+-----------------
+Every simulated policy's ``gap_percent`` is measured against the tightest yardstick computed
+(:func:`rmkit.workflows.reference.best_reference`): the exact optimum where it fits (asked for or
+solved in the background), else the lowest of the upper bounds that ran. Its 95% interval
+(``gap_percent_ci_low`` / ``_high``, standard error ``gap_percent_stderr``) combines the policy's
+sampling error with the bound's when the bound is sampled (:func:`rmkit.workflows.stats.
+gap_estimate`): *paired* when the bound kept its per-path values on the simulator's request
+streams of the same seed (``ir`` and ``ph`` do; every method is solved and simulated with the
+comparison's seed), so the covariance of bound and revenue over the shared paths is subtracted;
+``sqrt(se_policy^2 + se_bound^2)`` otherwise. The attr ``gap_pairing`` says which. Since every
+bound is above the optimum, ``gap_percent_ci_high`` is a 95% upper confidence limit on how far
+the policy is from optimal: the certified gap.
+
 Value-by-value errors
 ---------------------
 Let ``V_t`` be the exact value function. At period t and seats left x the exact bid price of leg
@@ -120,7 +134,7 @@ def select_methods(methods: Sequence[str] | str | None) -> list[str]:
 
     registry = load_all()
     if methods is None:
-        return sorted(registry)
+        return sorted(name for name, cls in registry.items() if cls.by_default)
     if isinstance(methods, str):
         methods = [m.strip() for m in methods.split(",") if m.strip()]
     names = list(dict.fromkeys(methods))
@@ -386,7 +400,8 @@ def simulate_runs(
             if r.status == "ran" and r.result is not None and r.solver.tags.control]
     for k, run in enumerate(todo):
         # Solved once from the start: replay that result (no second solve); else re-solve.
-        policy = run.result if resolve <= 1 else run.solver
+        own = run.solver.policy_resolves() > 1  # a policy defined with its own re-solves
+        policy = run.result if resolve <= 1 and not own else run.solver
         started = time.perf_counter()
         try:
             with warnings.catch_warnings():  # counted in the simulation's attrs instead
@@ -419,6 +434,8 @@ class _Frame:
     errors_note: str = ""
     best: str = ""
     reference: Reference = field(default_factory=Reference.none)
+    seed: int = 0
+    pairing: str = ""
     extra: dict[str, Any] = field(default_factory=dict)
 
 
@@ -501,7 +518,7 @@ def compare(
         if run.check not in ("", "ok"):
             warnings.warn(f"{run.name}: failed the independent check: {run.check}",
                           RuntimeWarning, stacklevel=2)
-    frame = _Frame(network, demand, paths)
+    frame = _Frame(network, demand, paths, seed=int(seed))
     exact = next((r for r in runs if r.status == "ran" and r.kind == "optimum"), None)
     if exact is None and with_exact:
         exact = _background_exact(network, demand, seed, progress)
@@ -527,6 +544,8 @@ def compare(
             "reference_kind": frame.reference.kind,
             "reference_method": frame.reference.method,
             "reference_value": float(frame.reference.value),
+            "reference_stderr": float(frame.reference.stderr),
+            "gap_pairing": frame.pairing,
             "best_policy": frame.best,
             "errors": frame.errors_note,
             "confidence": 0.95,
@@ -602,7 +621,8 @@ VARIABLES = (
     "status", "reason", "check", "warning", "value", "value_stderr", "bid_price", "bid_price_table",
     "revenue", "revenue_mean", "revenue_stderr", "revenue_ci_low", "revenue_ci_high",
     "difference_mean", "difference_stderr", "difference_ci_low", "difference_ci_high",
-    "gap_percent", *ERROR_NAMES, "load_factor_mean", "solve_seconds", "simulate_seconds",
+    "gap_percent", "gap_percent_stderr", "gap_percent_ci_low", "gap_percent_ci_high",
+    *ERROR_NAMES, "load_factor_mean", "solve_seconds", "simulate_seconds",
     "compile_seconds",
 )
 
@@ -619,9 +639,9 @@ def _check_table_size(network: Network, demand: DemandModel, n_methods: int) -> 
                  advice="compare on a network with fewer seats per leg")
 
 
-def _method_dataset(frame: _Frame, run: MethodRun, best: MethodRun | None, ref: float):
+def _method_dataset(frame: _Frame, run: MethodRun, best: MethodRun | None):
     from rmkit import schema
-    from rmkit.workflows.stats import paired_differences
+    from rmkit.workflows.stats import gap_estimate, paired_differences
 
     net, n_t = frame.network, frame.demand.n_periods
     m, width = net.n_legs, net.max_capacity + 1
@@ -658,8 +678,13 @@ def _method_dataset(frame: _Frame, run: MethodRun, best: MethodRun | None, ref: 
             d = paired_differences(revenue[None, :], best.simulation["revenue"].values[None, :])
             data.update(difference_mean=d.mean[0, 0], difference_stderr=d.stderr[0, 0],
                         difference_ci_low=d.ci_low[0, 0], difference_ci_high=d.ci_high[0, 0])
-        if math.isfinite(ref) and ref:
-            data["gap_percent"] = 100.0 * (ref - data["revenue_mean"]) / ref
+        ref = frame.reference
+        if math.isfinite(ref.value) and ref.value:
+            g = gap_estimate(revenue, ref.value, ref.stderr, ref.paths_for(frame.seed))
+            data.update(gap_percent=g.percent, gap_percent_stderr=g.percent_stderr,
+                        gap_percent_ci_low=g.percent_ci_low, gap_percent_ci_high=g.percent_ci_high)
+            frame.pairing = g.pairing if not g.common_paths else (
+                f"paired on {g.common_paths} common request streams")
     if frame.visits is not None and res is not None and run.solver.tags.gives_bid_prices:
         if run.kind == "optimum":
             errors = visit_weighted_errors(frame.visits, net.incidence, frame.exact_leg,
@@ -687,7 +712,7 @@ def _assemble(frame: _Frame, runs: Sequence[MethodRun]):
     from rmkit import schema
 
     best = next((r for r in runs if r.name == frame.best), None)
-    parts = [_method_dataset(frame, r, best, frame.reference.value) for r in runs]
+    parts = [_method_dataset(frame, r, best) for r in runs]
     ds = xr.concat(parts, dim="method", join="exact", data_vars="all", coords="minimal",
                    compat="identical")
     ds = ds.assign_coords(method=np.array([r.name for r in runs], dtype=object),
@@ -728,10 +753,13 @@ def v_inf_to_nan(a: np.ndarray) -> np.ndarray:
 # ---------------------------------------------------------------- the ranked table
 def _estimates(row: dict[str, Any], attrs: Mapping[str, Any]) -> dict[str, Any]:
     """What a reader concludes from a row: whether its paired difference from the best policy
-    is significant (the 95% interval excludes 0), and its gap as an estimate with the interval
-    ``100 (ref - revenue CI) / ref`` (the yardstick's own error is not included)."""
+    is significant (the 95% interval excludes 0), and its gap's 95% interval (stored with the
+    row, see :func:`compare`; files written before it was stored get ``100 (ref - revenue CI) /
+    ref``, without the yardstick's own error)."""
     low, high = row["difference_ci_low"], row["difference_ci_high"]
     significant = None if low is None or high is None else bool(low > 0 or high < 0)
+    if row.get("gap_percent_ci_low") is not None:
+        return {"difference_significant": significant}
     ref = float(attrs.get("reference_value", math.nan))
     gap_low = gap_high = None
     if math.isfinite(ref) and ref and row["revenue_ci_low"] is not None:
@@ -756,6 +784,7 @@ def ranked(ds: xr.Dataset) -> list[dict[str, Any]]:
         for var in ("value", "value_stderr", "revenue_mean", "revenue_stderr", "revenue_ci_low",
                     "revenue_ci_high", "difference_mean", "difference_stderr",
                     "difference_ci_low", "difference_ci_high", "gap_percent",
+                    "gap_percent_stderr", "gap_percent_ci_low", "gap_percent_ci_high",
                     *ERROR_NAMES, "solve_seconds", "simulate_seconds", "compile_seconds"):
             v = float(d[var].values) if var in d else math.nan
             row[var] = v if math.isfinite(v) else None

@@ -106,6 +106,11 @@ class SolverPolicy:
     def parameters(self) -> dict[str, Any]:
         return self.solver.get_params()
 
+    @property
+    def min_resolves(self) -> int:
+        """Re-solves the method's policy is defined with (:meth:`Solver.policy_resolves`)."""
+        return int(self.solver.policy_resolves())
+
     def control_at(self, network, demand, period, capacity, seed) -> SolveResult:
         return self.controls_at(network, demand, [(period, capacity)], [seed])[0]
 

@@ -1,5 +1,9 @@
 """The yardstick of gaps: the optimum where a method gives it, else the lowest upper bound.
 
+The lowest bound is chosen by its value; a sampled bound (``ir``, ``ph``) is chosen by its sample
+mean, which picks the luckiest of several noisy bounds (a small optimistic bias when two bounds are
+within a standard error of each other; the gap's interval still carries the chosen bound's error).
+
 Which methods give an optimum or a bound is a fact of their tags (``exact``, ``upper_bound``,
 ``reference``: cheap and sure enough to solve as a yardstick); nothing here names a method.
 """
@@ -8,7 +12,9 @@ from __future__ import annotations
 
 import math
 from collections.abc import Iterable
-from dataclasses import dataclass
+from dataclasses import dataclass, field
+
+import numpy as np
 
 from rmkit.errors import InputError, ProblemTooLargeError, SolverError
 from rmkit.methods.base import Solver, load_all
@@ -25,6 +31,18 @@ class Reference:
     method: str
     value: float
     stderr: float = 0.0
+    #: A sampled bound's per-path values and the seed of its request streams (path k of
+    #: ``demand.sample_arrivals(K, seed)``), when the method keeps them: the gap of a policy
+    #: simulated with the same seed is then estimated paired
+    #: (:func:`rmkit.workflows.stats.gap_estimate`).
+    path_values: np.ndarray | None = field(default=None, compare=False, repr=False)
+    seed: int | None = None
+
+    def paths_for(self, seed: int) -> np.ndarray | None:
+        """The per-path values when they were drawn on the streams of ``seed``, else None."""
+        if self.path_values is None or self.seed is None or int(self.seed) != int(seed):
+            return None
+        return self.path_values
 
     @staticmethod
     def none() -> Reference:
@@ -44,7 +62,13 @@ def best_reference(results: Iterable[tuple[Solver, SolveResult]]) -> Reference:
     if not bounds:
         return Reference.none()
     solver, result = min(bounds, key=lambda sr: sr[1].value)
-    return Reference("best bound", solver.name, result.value, result.stderr or 0.0)
+    payload = result.payload or {}
+    paths, seed = None, None
+    if result.period == 0 and "paths_seed" in payload and "path_values" in payload:
+        paths = np.asarray(payload["path_values"], dtype=np.float64)
+        seed = int(payload["paths_seed"])
+    return Reference("best bound", solver.name, result.value, result.stderr or 0.0,
+                     path_values=paths, seed=seed)
 
 
 def solve_reference(network: Network, demand: DemandModel, seed: int) -> Reference:

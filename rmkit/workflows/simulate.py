@@ -203,6 +203,9 @@ def replay(
             "the method (its name or a Solver) to re-solve it, or drop the re-solves"
         )
     resolving = source.resolvable and control.adaptive
+    floor = getattr(source, "min_resolves", 0)
+    if resolving and floor > resolve:  # a policy defined with its own re-solves (lr-frequent)
+        resolve = min(int(floor), n_periods)
     points = resolve_periods(n_periods, resolve) if resolving else np.zeros(1, np.int64)
     every_sale = bool(resolve_every_sale) and resolving and control.sale_sensitive
     book = _Book.start(network, n_paths, demand.n_customer_types)

@@ -36,6 +36,7 @@ or a setting makes new cells instead of reusing stale ones.
 """
 
 from rmkit.workflows.sweep.cells import Cell, derived_seed, expand_cells, scenario_fingerprint
+from rmkit.workflows.sweep.gaps import gap_table, write_gap_table
 from rmkit.workflows.sweep.grid import Grid, MethodSpec, ScenarioRef, grid_from_dict, load_grid
 from rmkit.workflows.sweep.read import (
     iter_failures,
@@ -49,7 +50,7 @@ from rmkit.workflows.sweep.store import CELL_STATUSES, Store
 
 __all__ = [
     "CELL_STATUSES", "Cell", "Grid", "MethodSpec", "ScenarioRef", "Store", "SweepInterrupted",
-    "SweepReport", "derived_seed", "expand_cells", "grid_from_dict", "iter_failures", "load_grid",
-    "open_sweep", "run_sweep", "scenario_fingerprint", "summary_by_method", "value_table",
-    "write_combined",
+    "SweepReport", "derived_seed", "expand_cells", "gap_table", "grid_from_dict", "iter_failures",
+    "load_grid", "open_sweep", "run_sweep", "scenario_fingerprint", "summary_by_method", "value_table",
+    "write_combined", "write_gap_table",
 ]
