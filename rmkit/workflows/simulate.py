@@ -48,6 +48,7 @@ import math
 import time
 import warnings
 from collections.abc import Mapping, Sequence
+from contextlib import contextmanager
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -241,9 +242,10 @@ def replay(
                 book.memo[idx] = 0  # the control's memory restarts with each new control
             nxt = np.searchsorted(points, period, side="right")
             stop = int(points[nxt]) if nxt < points.size else n_periods
-            loop_for(arrays, dem, idx.size, n_threads)(
-                arrays, dem, arrivals.customer, arrivals.uniform, idx, stop, every_sale, net,
-                book.arrays(), states, strides)
+            with _numba_threads(n_threads):
+                loop_for(arrays, dem, idx.size, n_threads)(
+                    arrays, dem, arrivals.customer, arrivals.uniform, idx, stop, every_sale, net,
+                    book.arrays(), states, strides)
             if progress is not None and time.perf_counter() - told > 0.1:
                 told = time.perf_counter()
                 progress(source.label, float(book.next_period.sum()), n_paths * n_periods)
@@ -270,6 +272,22 @@ def replay(
         trace=states if trace else None,
         summary=summary,
     )
+
+
+@contextmanager
+def _numba_threads(n: int):
+    """numba's thread count for this calling thread, restored afterwards (solves in between
+    keep their own)."""
+    import numba
+
+    before = numba.get_num_threads()
+    if n != before:
+        numba.set_num_threads(n)
+    try:
+        yield
+    finally:
+        if n != before:
+            numba.set_num_threads(before)
 
 
 def _threads(threads: int | None) -> int:
