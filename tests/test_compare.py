@@ -21,14 +21,11 @@ from rmkit import InputError, get_solver
 from rmkit.model.network import Network
 from rmkit.model.scenario import save_scenario, scenario_from_model
 from rmkit.results import SolveResult
-from rmkit.workflows.compare import (
+from rmkit.workflows.compare import check_allocation, check_paths, compare, ranked
+from rmkit.workflows.visits import (
     Visits,
-    check_allocation,
-    check_paths,
-    compare,
     policy_visits,
     quoted_bid_prices,
-    ranked,
     visit_weighted_errors,
 )
 from tests.conftest import DATA, EXAMPLE
