@@ -222,7 +222,7 @@ replay_paths_parallel_uncached = njit(cache=False, parallel=True)(replay_paths_p
 PARALLEL_MIN_PATHS = 256
 
 
-def loop_for(ctrl, dem, n_paths: int = 0, threads: int = 1):
+def loop_for(ctrl, dem, n_paths: int = 0):
     """The replay loop for these array types: cached when both types are rmkit's own, the
     threaded loop when there are enough paths (the caller sets how many threads it may use).
 

@@ -243,7 +243,7 @@ def replay(
             nxt = np.searchsorted(points, period, side="right")
             stop = int(points[nxt]) if nxt < points.size else n_periods
             with _numba_threads(n_threads):
-                loop_for(arrays, dem, idx.size, n_threads)(
+                loop_for(arrays, dem, idx.size)(
                     arrays, dem, arrivals.customer, arrivals.uniform, idx, stop, every_sale, net,
                     book.arrays(), states, strides)
             if progress is not None and time.perf_counter() - told > 0.1:
