@@ -141,6 +141,22 @@ def test_local_cluster_listens_on_this_machine_only(tmp_path):
     assert [r[3] for r in rows] == ["404", "200"]  # the dashboard page exists only on request
 
 
+def test_local_workers_log_nothing_below_critical():
+    # a worker closing mid-heartbeat logs a traceback at ERROR from distributed.worker, which
+    # silence_logs does not reach (it sets only the nanny's logger in the worker process)
+    import logging
+
+    from rmkit.workflows.sweep.runner import _start_client
+
+    client, cluster = _start_client(None, 1)
+    try:
+        levels = client.run(lambda: logging.getLogger("distributed.worker").getEffectiveLevel())
+    finally:
+        client.close()
+        cluster.close()
+    assert list(levels.values()) == [logging.CRITICAL]
+
+
 def test_ctrl_c_to_the_process_group_prints_no_worker_traceback(tmp_path):
     (tmp_path / "grid.toml").write_text(GRID.replace("seeds = [0, 1, 3]", "seeds = 12")
                                         .replace("paths = 60", "paths = 3000"))

@@ -78,7 +78,11 @@ def _start_client(scheduler: str | None, workers: int | None, dashboard: bool = 
     finally:
         if main:
             signal.signal(signal.SIGINT, previous)
-    return Client(cluster), cluster
+    from rmkit.workflows.sweep.quiet_workers import QuietWorkerLogs
+
+    client = Client(cluster)
+    client.register_plugin(QuietWorkerLogs(), name="rmkit-quiet-worker-logs")
+    return client, cluster
 
 
 def run_sweep(
