@@ -35,10 +35,15 @@ def _assert_same(a, b) -> None:
             np.testing.assert_array_equal(np.asarray(a[name]), np.asarray(b[name]))
 
 
-@pytest.mark.parametrize("method", ["dpd", "dlp", "emsrb"])
-def test_a_batch_of_re_solves_equals_one_solve_per_state(method):
+@pytest.mark.parametrize(("method", "settings"), [
+    ("dpd", {}), ("dlp", {}), ("emsrb", {}),
+    # one table per period (prorated fares), and one per distinct displaced fares (network)
+    ("emsrb-heuristic", {}), ("emsrb-heuristic", {"fare_basis": "network"}),
+    ("emsrb-heuristic", {"fare_basis": "network", "displacement_iterations": 1}),
+])
+def test_a_batch_of_re_solves_equals_one_solve_per_state(method, settings):
     net, dem = _problem()
-    solver = get_solver(method)
+    solver = get_solver(method, **settings)
     states = _states(net)
     batch = solver.resolve(net, dem, states, [None] * len(states), ResolveSession())
     for state, got in zip(states, batch, strict=True):

@@ -51,6 +51,9 @@ from rmkit.methods.emsrb import (
 from rmkit.methods.shared.fare_basis import counted_fares_for, moments_to_come, prorated_fares
 from rmkit.methods.shared.leg_heuristics import levels_from_seat_values
 
+#: each product's mean and variance of the requests still to come, by period (moments_to_come)
+Moments = tuple[np.ndarray, np.ndarray]
+
 CHUNK_CELLS = 4_000_000  # numbers per EMSR-b pass over a chunk of periods (~32 MB each)
 
 
@@ -82,20 +85,44 @@ class EmsrbHeuristicBidPrices(Solver):
     }
 
     def _solve(self, problem: Problem, params: dict[str, Any], seed: int | None) -> SolveOutput:
-        net = problem.network
-        t0, x = problem.period, problem.capacity
+        moments = moments_to_come(problem.demand.sale_probabilities())
+        counted, displacement = self._counted(problem, moments, params, seed)
+        batch, table = self._table(problem, moments, counted, params)
+        return self._output(problem, moments, batch, table, counted, displacement, params)
+
+    def _resolve(self, problems, params, seeds, session) -> list[SolveOutput]:
+        """States of one period that count the same fares share one table: the table depends on
+        the state only through the counted fares (with the default prorated basis, not at all),
+        so a re-solve round computes one EMSR-b pass per period instead of one per state."""
+        tables: dict[tuple[int, bytes], tuple[LegBatch, np.ndarray]] = {}
+        moments = moments_to_come(problems[0].demand.sale_probabilities())  # one demand model
+        outs = []
+        for problem, seed in zip(problems, seeds, strict=True):
+            counted, displacement = self._counted(problem, moments, params, seed)
+            key = (problem.period, counted.tobytes())
+            if key not in tables:
+                tables[key] = self._table(problem, moments, counted, params)
+            batch, table = tables[key]
+            outs.append(self._output(problem, moments, batch, table, counted, displacement,
+                                     params))
+        session.count("states", len(problems))
+        session.count("tables", len(tables))
+        return outs
+
+    def _counted(self, problem: Problem, moments: Moments, params: dict[str, Any],
+                 seed: int | None):
+        """The fares each leg counts at the solve state, and the displacement step behind them."""
+        net, t0, x = problem.network, problem.period, problem.capacity
         law = params["law"]
-        means, variances = moments_to_come(problem.demand.sale_probabilities())
-        # a request in period t is valued against the demand after it: rows t+1 .. T
-        after_mean, after_var = means[t0 + 1 :], variances[t0 + 1 :]
+        means, variances = moments
         legs = np.arange(net.n_legs)
 
         def own_bid_prices(counted: np.ndarray) -> np.ndarray:
             batch = LegBatch.build(counted, means[t0], None)
-            _, values = leg_curves(batch, after_mean[0], after_var[0], law, int(x.max()))
+            _, values = leg_curves(batch, means[t0 + 1], variances[t0 + 1], law, int(x.max()))
             return values[legs, x]
 
-        counted, displacement = counted_fares_for(
+        return counted_fares_for(
             problem,
             params["fare_basis"],
             params["displacement_iterations"],
@@ -103,6 +130,15 @@ class EmsrbHeuristicBidPrices(Solver):
             seed,
             own_bid_prices,
         )
+
+    def _table(self, problem: Problem, moments: Moments, counted: np.ndarray,
+               params: dict[str, Any]) -> tuple[LegBatch, np.ndarray]:
+        """The scaled bid-price table ``[t - t0, x, i]`` from the solve period on."""
+        net, t0 = problem.network, problem.period
+        law = params["law"]
+        means, variances = moments
+        # a request in period t is valued against the demand after it: rows t+1 .. T
+        after_mean, after_var = means[t0 + 1 :], variances[t0 + 1 :]
         batch = LegBatch.build(counted, means[t0], None)
         n_rows, top = after_mean.shape[0], net.max_capacity
         values = np.empty((n_rows, net.n_legs, top + 1))
@@ -116,6 +152,13 @@ class EmsrbHeuristicBidPrices(Solver):
         for i, c in enumerate(net.capacities):
             table[:, 0, i] = np.inf
             table[:, 1 : c + 1, i] = scale * values[:, i, 1 : c + 1]
+        return batch, table
+
+    def _output(self, problem: Problem, moments: Moments, batch: LegBatch, table: np.ndarray,
+                counted: np.ndarray, displacement, params: dict[str, Any]) -> SolveOutput:
+        net, t0, x = problem.network, problem.period, problem.capacity
+        law, top = params["law"], net.max_capacity
+        means, variances = moments
         # the nested limits the solve period's (scaled) bid prices imply, for the value
         first = np.where(np.arange(top + 1)[None, :] <= x[:, None], table[0].T, -np.inf)
         levels = levels_from_seat_values(first, batch.fares)
@@ -123,7 +166,7 @@ class EmsrbHeuristicBidPrices(Solver):
         value = legs_value(batch, levels, x, means[t0], variances[t0], law, shares)
         variables = {
             "value": np.float64(value),
-            "bid_price": table[0, x, legs],
+            "bid_price": table[0, x, np.arange(net.n_legs)],
             "bid_price_table": table,
             "net_fare": counted,
         }
