@@ -74,3 +74,46 @@ def test_two_threads_give_the_one_thread_numbers(policy, resolve):
     for name in ("revenue", "accepted", "no_purchase", "seats_left"):
         np.testing.assert_array_equal(getattr(runs[0], name), getattr(runs[1], name))
     assert runs[0].solves == runs[1].solves
+
+
+def test_the_serial_leg_kernels_equal_the_batch_kernels_and_their_py_func():
+    """lr's loop runs the leg kernels leg after leg without the GIL (``*_each``) so that its
+    re-solves can share the cores; they must give the batch kernels' numbers, and their own
+    interpreted code's."""
+    from rmkit.kernels.decomposition import leg_acceptance_batch, leg_acceptance_each
+    from rmkit.kernels.single_leg import leg_values_batch, leg_values_each
+
+    rng = np.random.default_rng(7)
+    n_legs, n_periods, n = 3, 15, 5
+    prob = rng.uniform(0, 0.15, (n_periods, n))
+    fares = rng.uniform(-5, 60, (n_legs, n_periods, n))  # some never accepted (<= 0)
+    caps = np.array([4, 6, 2])
+    start = np.array([3, 6, 1])
+    outs = []
+    for values_fn, accept_fn in ((leg_values_batch, leg_acceptance_batch),
+                                 (leg_values_each, leg_acceptance_each),
+                                 (leg_values_each.py_func, leg_acceptance_each.py_func)):
+        values = np.empty((n_legs, n_periods + 1, 7))
+        occupancy = np.empty_like(values)
+        accept = np.empty((n_legs, n_periods, n))
+        values_fn(prob, fares, caps, values)
+        accept_fn(prob, fares, caps, start, values, occupancy, accept)
+        outs.append((values, occupancy, accept))
+    for other in outs[1:]:
+        for a, b in zip(outs[0], other, strict=True):
+            np.testing.assert_array_equal(a, b)
+
+
+@pytest.mark.skipif(numba.get_num_threads() < 2, reason="one numba thread on this machine")
+def test_lr_re_solves_side_by_side_equal_one_thread():
+    net, dem = _problem()
+    states = _states(net)[1:]  # no full state: every one goes to the threads
+    two = get_solver("lr").resolve(net, dem, states, [None] * len(states), ResolveSession())
+    before = numba.get_num_threads()
+    numba.set_num_threads(1)
+    try:
+        one = get_solver("lr").resolve(net, dem, states, [None] * len(states), ResolveSession())
+    finally:
+        numba.set_num_threads(before)
+    for a, b in zip(one, two, strict=True):
+        _assert_same(a, b)

@@ -16,7 +16,7 @@ import numpy as np
 from numba import njit, prange
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def _leg_acceptance_into(
     prob: np.ndarray,
     fare: np.ndarray,
@@ -80,7 +80,26 @@ def leg_acceptance_batch(
         )
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
+def leg_acceptance_each(
+    prob: np.ndarray,
+    fares: np.ndarray,
+    capacities: np.ndarray,
+    start: np.ndarray,
+    value: np.ndarray,
+    occupancy_out: np.ndarray,
+    accept_out: np.ndarray,
+) -> None:
+    """:func:`leg_acceptance_batch` leg after leg on the calling thread, without the GIL (see
+    :func:`rmkit.kernels.single_leg.leg_values_each`)."""
+    for leg in range(fares.shape[0]):
+        _leg_acceptance_into(
+            prob, fares[leg], capacities[leg], start[leg], value[leg], occupancy_out[leg],
+            accept_out[leg],
+        )
+
+
+@njit(cache=True, nogil=True)
 def _leg_count(product_legs: np.ndarray, j: int) -> int:
     """Number of legs of product j (rows of ``product_legs`` are padded with -1)."""
     k = 0
@@ -89,7 +108,7 @@ def _leg_count(product_legs: np.ndarray, j: int) -> int:
     return k
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def split_direction(
     prob: np.ndarray, accept: np.ndarray, product_legs: np.ndarray, direction_out: np.ndarray
 ) -> float:
@@ -125,7 +144,7 @@ def split_direction(
     return norm2
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def step_and_project(
     lam: np.ndarray,
     direction: np.ndarray,
@@ -178,7 +197,7 @@ def step_and_project(
                 lam_out[product_legs[j, m], t, j] = max(work[m] - theta, 0.0)
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def average_and_lower_bound(
     accept: np.ndarray,
     average: np.ndarray,

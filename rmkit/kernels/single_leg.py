@@ -20,7 +20,7 @@ import numpy as np
 from numba import njit, prange
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def _leg_values_into(prob: np.ndarray, fare: np.ndarray, capacity: int, value: np.ndarray) -> None:
     """Fill ``value[:, :capacity+1]`` (T+1 rows) for one leg; columns past capacity untouched."""
     n_periods, n_products = prob.shape
@@ -64,11 +64,26 @@ def leg_values_batch(
     ``value_out`` ``(L, T+1, cmax+1)`` float64 with ``cmax >= max(capacities)``. Entries above a
     leg's capacity are set to NaN.
     """
-    n_legs = fares.shape[0]
-    width = value_out.shape[2]
-    for leg in prange(n_legs):
-        c = capacities[leg]
-        _leg_values_into(prob, fares[leg], c, value_out[leg])
-        for t in range(value_out.shape[1]):
-            for x in range(c + 1, width):
-                value_out[leg, t, x] = np.nan
+    for leg in prange(fares.shape[0]):
+        _leg_values_padded(prob, fares[leg], capacities[leg], value_out[leg])
+
+
+@njit(cache=True, nogil=True)
+def leg_values_each(
+    prob: np.ndarray, fares: np.ndarray, capacities: np.ndarray, value_out: np.ndarray
+) -> None:
+    """:func:`leg_values_batch` leg after leg on the calling thread, without the GIL: for
+    callers that run many small problems side by side in threads of their own (the Lagrangian
+    re-solves of a simulation), where waking a thread pool per call costs more than a leg."""
+    for leg in range(fares.shape[0]):
+        _leg_values_padded(prob, fares[leg], capacities[leg], value_out[leg])
+
+
+@njit(cache=True, nogil=True)
+def _leg_values_padded(prob: np.ndarray, fare: np.ndarray, capacity: int, value: np.ndarray
+                       ) -> None:
+    """One leg's values, with NaN in the columns above its capacity."""
+    _leg_values_into(prob, fare, capacity, value)
+    for t in range(value.shape[0]):
+        for x in range(capacity + 1, value.shape[1]):
+            value[t, x] = np.nan

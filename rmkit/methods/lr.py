@@ -64,6 +64,7 @@ from __future__ import annotations
 import math
 import warnings
 import weakref
+from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Any
 
@@ -89,11 +90,11 @@ from rmkit.model.network import Network
 LEVEL_FRACTION = 0.1
 WARM_LEVEL = 0.002
 PATH_FACTOR = 10.0
-#: numba threads for the kernels of the loop. One pass over the legs is about a millisecond, less
-#: than the cost of waking a thread pool on a busy machine: on the 200-period 4-spoke instance
-#: 100 iterations took 0.12 s on one thread against 2.0 s on two, in one run on the shared
-#: 2-core machine. (The setting is local to the calling thread and restored afterwards.)
-KERNEL_THREADS = 1
+#: The loop's kernels run leg after leg on the calling thread, without the GIL. One pass over
+#: the legs is about a millisecond, less than the cost of waking a thread pool on a busy machine
+#: (on the 200-period 4-spoke instance 100 iterations took 0.12 s on one thread against 2.0 s on
+#: two, in one run on the shared 2-core machine); the cores serve whole re-solves instead, side
+#: by side in threads (``_resolve``).
 #: Iterations over which the bound's improvement is measured for the ``stall_tol`` rule.
 STALL_WINDOW = 100
 #: A simulator's re-solve (``Solver.resolve``) starts from the run's period-0 split and stops
@@ -164,16 +165,9 @@ def minimise_bound(
     over the last ``stable_window`` iterations: what a policy re-solved at that state uses has
     settled, though the bound may still fall a little.
     """
-    import numba
-
-    threads = numba.get_num_threads()
-    numba.set_num_threads(min(KERNEL_THREADS, threads))
-    try:
-        return _minimise(network, prob, capacity, start, tol=tol, max_iterations=max_iterations,
-                         step_factor=step_factor, stall_tol=stall_tol, warm=warm,
-                         stable_tol=stable_tol, stable_window=stable_window, mix=mix)
-    finally:
-        numba.set_num_threads(threads)
+    return _minimise(network, prob, capacity, start, tol=tol, max_iterations=max_iterations,
+                     step_factor=step_factor, stall_tol=stall_tol, warm=warm,
+                     stable_tol=stable_tol, stable_window=stable_window, mix=mix)
 
 
 def _minimise(
@@ -193,11 +187,11 @@ def _minimise(
 ) -> LagrangianRun:
     from rmkit.kernels.decomposition import (
         average_and_lower_bound,
-        leg_acceptance_batch,
+        leg_acceptance_each,
         split_direction,
         step_and_project,
     )
-    from rmkit.kernels.single_leg import leg_values_batch
+    from rmkit.kernels.single_leg import leg_values_each
 
     prob = np.ascontiguousarray(prob, dtype=np.float64)
     caps = np.ascontiguousarray(network.capacities, dtype=np.int64)
@@ -234,9 +228,9 @@ def _minimise(
     status = "iteration_limit"
     for k in range(max_iterations):
         lam = buffers[current]
-        leg_values_batch(prob, lam, caps, values)
+        leg_values_each(prob, lam, caps, values)
         value = float(values[leg_index, 0, x].sum())
-        leg_acceptance_batch(prob, lam, caps, x, values, occupancy, accept)
+        leg_acceptance_each(prob, lam, caps, x, values, occupancy, accept)
         if value < record:
             record, best = value, current
             if not mix:  # the record's own values: no leg pass again at the end
@@ -296,7 +290,7 @@ def _minimise(
                          prob, work, buffers[following])
         current = following
     if mix:
-        leg_values_batch(prob, buffers[best], caps, values)
+        leg_values_each(prob, buffers[best], caps, values)
         best_values = values
     else:  # the last iterate's policy certifies the gap (weight 1: no mix)
         lower = max(lower, average_and_lower_bound(accept, accept, 1.0, fares, legs))
@@ -396,34 +390,48 @@ class LagrangianRelaxation(Solver):
         """Re-solves of a simulated run: each starts from the run's period-0 split restricted to
         the periods left and stops when its bid prices at the state have settled, or at the
         re-solve budget; its gap is certified by its last policy. Every bound stays valid; the
-        session counts how each stopped for the one-line summary."""
-        outs = []
-        for problem in problems:
-            full = (problem.period == 0
-                    and np.array_equal(problem.capacity, problem.network.capacities))
-            if full:  # the run's first solve: converged, and the split every re-solve starts from
-                out = self._solve(problem, params, None)
-                session.cache["split"] = np.asarray(out.variables["multiplier"]).transpose(1, 0, 2)
-                outs.append(out)
-                continue
-            network, demand = problem.network, problem.demand
-            split = session.cache.get("split")
-            if split is None:
-                split = self._period_zero_multipliers(network, demand, params)
-                session.cache["split"] = split
+        session counts how each stopped for the one-line summary.
+
+        The states of a round are independent given the split, and the loop's kernels release
+        the GIL, so they run side by side on numba's thread count (one per core unless
+        NUMBA_NUM_THREADS says otherwise); each state's numbers do not depend on it."""
+        outs: list[SolveOutput | None] = [None] * len(problems)
+        rest = []
+        for q, problem in enumerate(problems):
+            if problem.period == 0 and np.array_equal(problem.capacity,
+                                                      problem.network.capacities):
+                # the run's first solve: converged, and the split every re-solve starts from
+                outs[q] = self._solve(problem, params, None)
+                session.cache["split"] = (np.asarray(outs[q].variables["multiplier"])
+                                          .transpose(1, 0, 2))
+            else:
+                rest.append(q)
+        if not rest:
+            return outs  # type: ignore[return-value]
+        split = session.cache.get("split")
+        if split is None:
+            split = self._period_zero_multipliers(problems[0].network, problems[0].demand, params)
+            session.cache["split"] = split
+
+        def one(q: int) -> tuple[LagrangianRun, SolveOutput]:
+            problem = problems[q]
             run = minimise_bound(
-                network, problem.probabilities, problem.capacity, split[:, problem.period :, :],
+                problem.network, problem.probabilities, problem.capacity,
+                split[:, problem.period :, :],
                 **{**_run_settings(params), "max_iterations": params["resolve_iterations"]},
                 warm=True, stable_tol=params["resolve_tol"], stable_window=RESOLVE_WINDOW,
                 mix=False,
             )
+            return run, self._output(problem, run, params, warn=False)
+
+        for q, (run, out) in zip(rest, _side_by_side(one, rest), strict=True):
             why = ("converged" if run.status == "optimal" else "budget"
                    if run.status == "iteration_limit" else "settled")
             session.count(why)
             session.record("gap", float(run.gap_history[-1]))
             session.record("iterations", float(run.gap_history.size))
-            outs.append(self._output(problem, run, params, warn=False))
-        return outs
+            outs[q] = out
+        return outs  # type: ignore[return-value]
 
     def resolve_summary(self, session) -> str:
         done = sum(session.counts.values())
@@ -580,3 +588,17 @@ def _with_streams(out: SolveOutput, problem: Problem, params: dict[str, Any],
                                                           dtype=np.int32)
     out.payload["rollout_z"] = float(params["z"])
     return out
+
+
+def _side_by_side(work: Callable[[int], Any], items: list[int]) -> list[Any]:
+    """``[work(q) for q in items]``, in that order, over numba's thread count of Python threads
+    (the work must release the GIL to gain from them)."""
+    import numba
+
+    threads = min(numba.get_num_threads(), len(items))
+    if threads <= 1:
+        return [work(q) for q in items]
+    from concurrent.futures import ThreadPoolExecutor
+
+    with ThreadPoolExecutor(threads, thread_name_prefix="rmkit-lr") as pool:
+        return list(pool.map(work, items))
