@@ -430,3 +430,18 @@ def test_batch_failure_wins_over_an_earlier_inaccurate_solve():
     assert batch.first_problem() == (2, "iteration_limit", "stopped at time_limit")
     with pytest.warns(RuntimeWarning, match="sample 2"):
         assert batch_failure("rlp", batch) == "iteration_limit"
+
+
+def test_pnlp_poisson_tails_in_one_call_equal_a_call_per_product(monkeypatch):
+    """pnlp computes every product's P(D >= u) in one vectorised call; the numbers must be
+    those of one call per product (the fallback above GRID_CELLS), bit for bit."""
+    from rmkit.methods import pnlp
+
+    rng = np.random.default_rng(1)
+    mean = np.r_[0.0, rng.uniform(0, 80, 50), 1e-9, 300.0]
+    units = np.full(mean.size, 10**6)
+    grid = pnlp.unit_increments("poisson", mean, mean, units)
+    monkeypatch.setattr(pnlp, "GRID_CELLS", 0)
+    each = pnlp.unit_increments("poisson", mean, mean, units)
+    assert all(np.array_equal(a, b) for a, b in zip(grid[0], each[0], strict=True))
+    np.testing.assert_array_equal(grid[1], each[1])

@@ -77,9 +77,9 @@ def test_two_threads_give_the_one_thread_numbers(policy, resolve):
 
 
 def test_the_serial_leg_kernels_equal_the_batch_kernels_and_their_py_func():
-    """lr's loop runs the leg kernels leg after leg without the GIL (``*_each``) so that its
-    re-solves can share the cores; they must give the batch kernels' numbers, and their own
-    interpreted code's."""
+    """lr's loop runs the leg kernels leg after leg without the GIL, reading each leg's own
+    products only (``*_each``), so that its re-solves can share the cores; they must give the
+    batch kernels' numbers, and their own interpreted code's."""
     from rmkit.kernels.decomposition import leg_acceptance_batch, leg_acceptance_each
     from rmkit.kernels.single_leg import leg_values_batch, leg_values_each
 
@@ -89,15 +89,23 @@ def test_the_serial_leg_kernels_equal_the_batch_kernels_and_their_py_func():
     fares = rng.uniform(-5, 60, (n_legs, n_periods, n))  # some never accepted (<= 0)
     caps = np.array([4, 6, 2])
     start = np.array([3, 6, 1])
+    # leg i's products; the others get fare 0 on it (never accepted), as in lr's splits
+    on_leg = np.array([[0, 1, 3, -1], [1, 2, 3, 4], [0, 4, -1, -1]])
+    for i, row in enumerate(on_leg):
+        fares[i][:, np.setdiff1d(np.arange(n), row)] = 0.0
     outs = []
     for values_fn, accept_fn in ((leg_values_batch, leg_acceptance_batch),
                                  (leg_values_each, leg_acceptance_each),
                                  (leg_values_each.py_func, leg_acceptance_each.py_func)):
         values = np.empty((n_legs, n_periods + 1, 7))
         occupancy = np.empty_like(values)
-        accept = np.empty((n_legs, n_periods, n))
-        values_fn(prob, fares, caps, values)
-        accept_fn(prob, fares, caps, start, values, occupancy, accept)
+        accept = np.zeros((n_legs, n_periods, n))
+        if values_fn is leg_values_batch:
+            values_fn(prob, fares, caps, values)
+            accept_fn(prob, fares, caps, start, values, occupancy, accept)
+        else:
+            values_fn(prob, fares, caps, on_leg, values)
+            accept_fn(prob, fares, caps, start, on_leg, values, occupancy, accept)
         outs.append((values, occupancy, accept))
     for other in outs[1:]:
         for a, b in zip(outs[0], other, strict=True):

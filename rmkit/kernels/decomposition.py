@@ -22,12 +22,20 @@ def _leg_acceptance_into(
     fare: np.ndarray,
     capacity: int,
     start: int,
+    products: np.ndarray,
     value: np.ndarray,
     occupancy: np.ndarray,
     accept: np.ndarray,
 ) -> None:
-    """One leg: ``occupancy[t, x]`` = P(x seats left at the start of t), ``accept[t, j]``."""
-    n_periods, n_products = prob.shape
+    """One leg: ``occupancy[t, x]`` = P(x seats left at the start of t), ``accept[t, j]``.
+
+    Only the products in ``products`` (ascending, padded at the end with -1) are read and their
+    ``accept`` entries written; the others must have fare ``<= 0`` on this leg, and their
+    entries are left as they are (the caller keeps them at 0)."""
+    n_periods = prob.shape[0]
+    n_listed = 0
+    while n_listed < products.size and products[n_listed] >= 0:
+        n_listed += 1
     width = occupancy.shape[1]
     for t in range(n_periods + 1):
         for x in range(width):
@@ -39,7 +47,8 @@ def _leg_acceptance_into(
         val = value[t + 1]
         for x in range(capacity + 1):
             nxt[x] = cur[x]
-        for j in range(n_products):
+        for q in range(n_listed):
+            j = products[q]
             f = fare[t, j]
             p = prob[t, j]
             accept[t, j] = 0.0
@@ -73,9 +82,10 @@ def leg_acceptance_batch(
     each period, and ``accept_out`` ``(L, T, n)``: the probability that leg i sells product j in
     period t (request probability times acceptance probability).
     """
+    every = np.arange(prob.shape[1])
     for leg in prange(fares.shape[0]):
         _leg_acceptance_into(
-            prob, fares[leg], capacities[leg], start[leg], value[leg], occupancy_out[leg],
+            prob, fares[leg], capacities[leg], start[leg], every, value[leg], occupancy_out[leg],
             accept_out[leg],
         )
 
@@ -86,16 +96,19 @@ def leg_acceptance_each(
     fares: np.ndarray,
     capacities: np.ndarray,
     start: np.ndarray,
+    leg_products: np.ndarray,
     value: np.ndarray,
     occupancy_out: np.ndarray,
     accept_out: np.ndarray,
 ) -> None:
-    """:func:`leg_acceptance_batch` leg after leg on the calling thread, without the GIL (see
-    :func:`rmkit.kernels.single_leg.leg_values_each`)."""
+    """:func:`leg_acceptance_batch` leg after leg on the calling thread, without the GIL, reading
+    only each leg's products (``leg_products``, as in
+    :func:`rmkit.kernels.single_leg.leg_values_each`). ``accept_out`` entries of products off a
+    leg are not written: start from zeros to get :func:`leg_acceptance_batch`'s array."""
     for leg in range(fares.shape[0]):
         _leg_acceptance_into(
-            prob, fares[leg], capacities[leg], start[leg], value[leg], occupancy_out[leg],
-            accept_out[leg],
+            prob, fares[leg], capacities[leg], start[leg], leg_products[leg], value[leg],
+            occupancy_out[leg], accept_out[leg],
         )
 
 

@@ -21,9 +21,16 @@ from numba import njit, prange
 
 
 @njit(cache=True, nogil=True)
-def _leg_values_into(prob: np.ndarray, fare: np.ndarray, capacity: int, value: np.ndarray) -> None:
-    """Fill ``value[:, :capacity+1]`` (T+1 rows) for one leg; columns past capacity untouched."""
-    n_periods, n_products = prob.shape
+def _leg_values_into(prob: np.ndarray, fare: np.ndarray, capacity: int, products: np.ndarray,
+                     value: np.ndarray) -> None:
+    """Fill ``value[:, :capacity+1]`` (T+1 rows) for one leg; columns past capacity untouched.
+
+    Only the products listed in ``products`` (ascending, padded at the end with -1) are read:
+    the others must have fare ``<= 0`` on this leg (never accepted)."""
+    n_periods = prob.shape[0]
+    n_listed = 0
+    while n_listed < products.size and products[n_listed] >= 0:
+        n_listed += 1
     for x in range(capacity + 1):
         value[n_periods, x] = 0.0
     for t in range(n_periods - 1, -1, -1):
@@ -32,7 +39,8 @@ def _leg_values_into(prob: np.ndarray, fare: np.ndarray, capacity: int, value: n
         cur[0] = 0.0
         for x in range(1, capacity + 1):
             cur[x] = nxt[x]
-        for j in range(n_products):
+        for q in range(n_listed):
+            j = products[q]
             f = fare[t, j]
             p = prob[t, j]
             if f <= 0.0 or p == 0.0:
@@ -50,7 +58,7 @@ def single_leg_values(
     ``prob`` and ``fare`` are ``(T, n)``; ``value_out`` is a preallocated ``(T+1, capacity+1)``
     float64 array, overwritten.
     """
-    _leg_values_into(prob, fare, capacity, value_out)
+    _leg_values_into(prob, fare, capacity, np.arange(prob.shape[1]), value_out)
 
 
 @njit(cache=True, parallel=True)
@@ -64,26 +72,33 @@ def leg_values_batch(
     ``value_out`` ``(L, T+1, cmax+1)`` float64 with ``cmax >= max(capacities)``. Entries above a
     leg's capacity are set to NaN.
     """
+    every = np.arange(prob.shape[1])
     for leg in prange(fares.shape[0]):
-        _leg_values_padded(prob, fares[leg], capacities[leg], value_out[leg])
+        _leg_values_padded(prob, fares[leg], capacities[leg], every, value_out[leg])
 
 
 @njit(cache=True, nogil=True)
 def leg_values_each(
-    prob: np.ndarray, fares: np.ndarray, capacities: np.ndarray, value_out: np.ndarray
+    prob: np.ndarray, fares: np.ndarray, capacities: np.ndarray, leg_products: np.ndarray,
+    value_out: np.ndarray,
 ) -> None:
-    """:func:`leg_values_batch` leg after leg on the calling thread, without the GIL: for
-    callers that run many small problems side by side in threads of their own (the Lagrangian
-    re-solves of a simulation), where waking a thread pool per call costs more than a leg."""
+    """:func:`leg_values_batch` leg after leg on the calling thread, without the GIL, reading
+    only the products of each leg: for callers that run many small problems side by side in
+    threads of their own (the Lagrangian re-solves of a simulation), where waking a thread pool
+    per call costs more than a leg.
+
+    ``leg_products`` ``(L, K)``: row i lists the products that may have a fare ``> 0`` on leg i
+    (ascending, padded with -1); the numbers equal :func:`leg_values_batch`'s when every other
+    product's fare on the leg is ``<= 0``."""
     for leg in range(fares.shape[0]):
-        _leg_values_padded(prob, fares[leg], capacities[leg], value_out[leg])
+        _leg_values_padded(prob, fares[leg], capacities[leg], leg_products[leg], value_out[leg])
 
 
 @njit(cache=True, nogil=True)
-def _leg_values_padded(prob: np.ndarray, fare: np.ndarray, capacity: int, value: np.ndarray
-                       ) -> None:
+def _leg_values_padded(prob: np.ndarray, fare: np.ndarray, capacity: int, products: np.ndarray,
+                       value: np.ndarray) -> None:
     """One leg's values, with NaN in the columns above its capacity."""
-    _leg_values_into(prob, fare, capacity, value)
+    _leg_values_into(prob, fare, capacity, products, value)
     for t in range(value.shape[0]):
         for x in range(capacity + 1, value.shape[1]):
             value[t, x] = np.nan

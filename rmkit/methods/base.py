@@ -155,6 +155,11 @@ class Solver:
     #: Whether "every method" (compare without --methods, the demo) includes it; variants whose
     #: policy is costly to simulate are named explicitly instead.
     by_default: ClassVar[bool] = True
+    #: Whether the states of a re-solve round may be solved side by side in threads: each solve
+    #: keeps to its own objects and spends most of its time without the GIL (HiGHS, numba
+    #: ``nogil`` kernels). Numbers do not change; a method whose re-solves share work overrides
+    #: :meth:`_resolve` instead.
+    solves_side_by_side: ClassVar[bool] = False
 
     def policy_resolves(self) -> int:
         """Re-solves the method's policy is defined with: the simulator re-solves it at no fewer
@@ -275,8 +280,16 @@ class Solver:
         :meth:`solve`; methods override :meth:`_resolve` to share work between states.
         """
         if type(self)._resolve is Solver._resolve:  # nothing shared: exactly solve, state by state
-            return [self.solve(network, demand, state=state, seed=seed)
-                    for state, seed in zip(states, seeds, strict=True)]
+            pairs = list(zip(states, seeds, strict=True))
+
+            def one(pair: tuple[BookingState, int | None]) -> SolveResult:
+                return self.solve(network, demand, state=pair[0], seed=pair[1])
+
+            if self.solves_side_by_side:
+                from rmkit.methods.shared.side_by_side import side_by_side
+
+                return side_by_side(one, pairs)
+            return [one(pair) for pair in pairs]
         params = self._checked_params()
         self._check_problem(network, demand)
         problems, used = [], []

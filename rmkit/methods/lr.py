@@ -64,7 +64,6 @@ from __future__ import annotations
 import math
 import warnings
 import weakref
-from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Any
 
@@ -80,7 +79,15 @@ from rmkit.methods.base import (
     positive_int,
     register,
 )
-from rmkit.methods.shared.leg_dp import bid_prices_at, leg_tables, network_leg_values, product_legs, value_at
+from rmkit.methods.shared.leg_dp import (
+    bid_prices_at,
+    leg_products,
+    leg_tables,
+    network_leg_values,
+    product_legs,
+    value_at,
+)
+from rmkit.methods.shared.side_by_side import side_by_side
 from rmkit.model.network import Network
 
 #: Initial level gap ``delta``: this fraction of the certified gap (cold start), or WARM_LEVEL
@@ -208,7 +215,10 @@ def _minimise(
     values = np.empty((n_legs, n_periods + 1, width))
     best_values = np.empty_like(values) if not mix else values
     occupancy = np.empty((n_legs, n_periods + 1, width))
-    accept = np.empty((n_legs, n_periods, n_products))
+    # the kernels read each leg's own products only: a product's multiplier on a leg it does
+    # not use is 0 (the split and its projection never write there), and its sales there stay 0
+    on_leg = leg_products(network)
+    accept = np.zeros((n_legs, n_periods, n_products))
     average = np.zeros_like(accept) if mix else accept  # without a mix nothing is averaged
     direction = np.zeros_like(accept)
     work = np.empty(2 * max(legs.shape[1], 1))
@@ -228,9 +238,9 @@ def _minimise(
     status = "iteration_limit"
     for k in range(max_iterations):
         lam = buffers[current]
-        leg_values_each(prob, lam, caps, values)
+        leg_values_each(prob, lam, caps, on_leg, values)
         value = float(values[leg_index, 0, x].sum())
-        leg_acceptance_each(prob, lam, caps, x, values, occupancy, accept)
+        leg_acceptance_each(prob, lam, caps, x, on_leg, values, occupancy, accept)
         if value < record:
             record, best = value, current
             if not mix:  # the record's own values: no leg pass again at the end
@@ -290,7 +300,7 @@ def _minimise(
                          prob, work, buffers[following])
         current = following
     if mix:
-        leg_values_each(prob, buffers[best], caps, values)
+        leg_values_each(prob, buffers[best], caps, on_leg, values)
         best_values = values
     else:  # the last iterate's policy certifies the gap (weight 1: no mix)
         lower = max(lower, average_and_lower_bound(accept, accept, 1.0, fares, legs))
@@ -422,9 +432,9 @@ class LagrangianRelaxation(Solver):
                 warm=True, stable_tol=params["resolve_tol"], stable_window=RESOLVE_WINDOW,
                 mix=False,
             )
-            return run, self._output(problem, run, params, warn=False)
+            return run, self._output(problem, run, params, warn=False, resolved=True)
 
-        for q, (run, out) in zip(rest, _side_by_side(one, rest), strict=True):
+        for q, (run, out) in zip(rest, side_by_side(one, rest), strict=True):
             why = ("converged" if run.status == "optimal" else "budget"
                    if run.status == "iteration_limit" else "settled")
             session.count(why)
@@ -448,7 +458,10 @@ class LagrangianRelaxation(Solver):
                 f"{float(np.median(gaps)):.2%}")
 
     def _output(self, problem: Problem, run: LagrangianRun, params: dict[str, Any],
-                warn: bool = True) -> SolveOutput:
+                warn: bool = True, resolved: bool = False) -> SolveOutput:
+        """The run as a result; a simulator's re-solve (``resolved``) leaves out the multipliers
+        (``(T, L, n)``, 11 MB on the largest public instance, and a round holds hundreds of
+        re-solves; the booking control reads the bid-price table only)."""
         leg_value, table = leg_tables(run.values)
         gap = float(run.gap_history[-1])
         message = (
@@ -467,19 +480,23 @@ class LagrangianRelaxation(Solver):
             )
         assert np.isclose(value_at(run.values, problem.capacity).sum(), run.bound, rtol=1e-9,
                           atol=1e-9)
+        variables = {
+            "value": np.float64(run.bound),
+            "multiplier": run.multiplier.transpose(1, 0, 2),
+            "leg_value": leg_value,
+            "bid_price_table": table,
+            "bid_price": bid_prices_at(table, problem.capacity),
+            "bound_history": run.bound_history,
+            "gap_history": run.gap_history,
+        }
+        if resolved:
+            del variables["multiplier"]
         return SolveOutput(
-            variables={
-                "value": np.float64(run.bound),
-                "multiplier": run.multiplier.transpose(1, 0, 2),
-                "leg_value": leg_value,
-                "bid_price_table": table,
-                "bid_price": bid_prices_at(table, problem.capacity),
-                "bound_history": run.bound_history,
-                "gap_history": run.gap_history,
-            },
+            variables=variables,
             status=run.status,
             message=message,
             payload={"iterations": int(run.gap_history.size), "lower_bound": run.lower_bound},
+            owned=True,  # every array is this run's own: no copy (the split cache only reads)
         )
 
 
@@ -588,17 +605,3 @@ def _with_streams(out: SolveOutput, problem: Problem, params: dict[str, Any],
                                                           dtype=np.int32)
     out.payload["rollout_z"] = float(params["z"])
     return out
-
-
-def _side_by_side(work: Callable[[int], Any], items: list[int]) -> list[Any]:
-    """``[work(q) for q in items]``, in that order, over numba's thread count of Python threads
-    (the work must release the GIL to gain from them)."""
-    import numba
-
-    threads = min(numba.get_num_threads(), len(items))
-    if threads <= 1:
-        return [work(q) for q in items]
-    from concurrent.futures import ThreadPoolExecutor
-
-    with ThreadPoolExecutor(threads, thread_name_prefix="rmkit-lr") as pool:
-        return list(pool.map(work, items))

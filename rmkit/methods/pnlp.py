@@ -69,6 +69,7 @@ from rmkit.methods.shared.network_lp import (
 LAWS = ("poisson", "normal")
 NEGLIGIBLE = 1e-12  # increments below this add nothing to the objective
 MAX_UNITS = 5_000_000  # unit columns HiGHS is asked to hold (a few hundred MB)
+GRID_CELLS = 2_000_000  # Poisson tails computed in one call (products x units), ~16 MB
 
 
 def unit_increments(
@@ -80,10 +81,18 @@ def unit_increments(
     out: list[np.ndarray] = []
     base = np.zeros(mean.size)
     units = np.minimum(max_units, useful_units(law, mean, var))
+    tails = None
+    top = int(units.max(initial=0))
+    if law == "poisson" and units.size * top <= GRID_CELLS:
+        # every product's P(D >= u) in one call: the same elementwise function, far less
+        # per-call overhead than a call per product (a re-solve round makes thousands)
+        grid = np.arange(top, dtype=np.float64)
+        tails = poisson.sf(grid[None, :], mean[:, None])
     for j, (mu, v, k) in enumerate(zip(mean, var, units, strict=True)):
         u = np.arange(1, int(k) + 1, dtype=np.float64)
         if law == "poisson":
-            delta = poisson.sf(u - 1, mu)  # P(D >= u) = P(D > u - 1)
+            # P(D >= u) = P(D > u - 1)
+            delta = tails[j, : int(k)] if tails is not None else poisson.sf(u - 1, mu)
         elif v <= 0.0:
             delta = np.clip(mu - (u - 1), 0.0, 1.0)  # degenerate law: D = mu
         else:

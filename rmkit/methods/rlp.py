@@ -104,6 +104,7 @@ class RandomizedLP(Solver):
 
     name = "rlp"
     tags = Tags(upper_bound=True, stochastic=True, control="bid_price")
+    solves_side_by_side = True  # a new HiGHS model per solve; HiGHS runs without the GIL
     citation = (
         "K. T. Talluri and G. J. van Ryzin (1999), A randomized linear programming method for "
         "computing network bid prices, Transportation Science 33(2):207-216"

@@ -284,15 +284,19 @@ def simulate_runs(
     progress: Progress | None = None,
 ) -> None:
     """Simulate the policy of every method that ran and gives one, on the same request streams."""
+    from rmkit.controls import get_control
     from rmkit.workflows.progress import part
     from rmkit.workflows.simulate import simulate
 
     todo = [r for r in runs
             if r.status == "ran" and r.result is not None and r.solver.tags.control]
     for k, run in enumerate(todo):
-        # Solved once from the start: replay that result (no second solve); else re-solve.
+        # Solved once from the start: replay that result (no second solve); else re-solve. A
+        # control the simulator never re-solves (stored decisions, alp's period table) is the
+        # result's too, whatever ``resolve`` says.
         own = run.solver.policy_resolves() > 1  # a policy defined with its own re-solves
-        policy = run.result if resolve <= 1 and not own else run.solver
+        fixed = resolve <= 1 or not get_control(run.solver.tags.control).adaptive
+        policy = run.result if fixed and not own else run.solver
         started = time.perf_counter()
         try:
             with warnings.catch_warnings():  # counted in the simulation's attrs instead

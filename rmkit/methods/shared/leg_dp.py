@@ -217,6 +217,17 @@ def product_legs(network: Network) -> np.ndarray:
     return out
 
 
+def leg_products(network: Network) -> np.ndarray:
+    """``(n_legs, k_max)`` int64: the products using each leg, ascending, padded with -1."""
+    a = network.incidence
+    k_max = int(a.sum(axis=1).max(initial=0))
+    out = np.full((network.n_legs, max(k_max, 1)), -1, dtype=np.int64)
+    for i in range(network.n_legs):
+        products = np.flatnonzero(a[i])
+        out[i, : products.size] = products
+    return out
+
+
 def network_leg_values(prob: np.ndarray, fares: np.ndarray, network: Network) -> np.ndarray:
     """``(L, T+1, cmax+1)`` values of every leg of ``network`` for per-leg fares ``(L, T, n)``.
 
