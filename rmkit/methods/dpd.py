@@ -149,8 +149,10 @@ def _shared_leg_values(prob: np.ndarray, fares: np.ndarray, network: Network
         where[:, i] = len(rows) + inverse.ravel()
         rows.extend(unique)
         caps.extend([int(network.capacities[i])] * len(unique))
-    virtual = np.ascontiguousarray(np.broadcast_to(
-        np.asarray(rows)[:, None, :], (len(rows), prob.shape[0], network.n_products)))
+    # the fares are constant over the periods: a view with a zero period stride, not a copy
+    # (hundreds of distinct legs x T x n would be over 100 MB per round on a 600-period network)
+    virtual = np.broadcast_to(np.asarray(rows)[:, None, :],
+                              (len(rows), prob.shape[0], network.n_products))
     solved = np.empty((len(rows), prob.shape[0] + 1, network.max_capacity + 1))
     leg_values_batch(np.ascontiguousarray(prob), virtual, np.asarray(caps, dtype=np.int64),
                      solved)

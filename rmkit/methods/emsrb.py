@@ -61,8 +61,8 @@ from rmkit.methods.shared.fare_basis import (
     FARE_BASES,
     LegClasses,
     counted_fares_for,
+    demand_moments,
     leg_classes,
-    moments_to_come,
     prorated_fares,
 )
 from rmkit.methods.shared.leg_heuristics import LAWS, demand_pmf_grid, emsr_b_curve, nested_sales_batch
@@ -196,7 +196,7 @@ def solve_nested(
 ) -> SolveOutput:
     """The whole nested solve shared by ``emsrb`` and ``davn``."""
     net = problem.network
-    means, variances = moments_to_come(problem.demand.sale_probabilities())
+    means, variances = demand_moments(problem.demand)
     mean, var = means[problem.period], variances[problem.period]
     law = params["law"]
 

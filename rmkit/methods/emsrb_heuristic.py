@@ -48,7 +48,7 @@ from rmkit.methods.emsrb import (
     leg_output,
     legs_value,
 )
-from rmkit.methods.shared.fare_basis import counted_fares_for, moments_to_come, prorated_fares
+from rmkit.methods.shared.fare_basis import counted_fares_for, demand_moments, prorated_fares
 from rmkit.methods.shared.leg_heuristics import levels_from_seat_values
 
 #: each product's mean and variance of the requests still to come, by period (moments_to_come)
@@ -85,7 +85,7 @@ class EmsrbHeuristicBidPrices(Solver):
     }
 
     def _solve(self, problem: Problem, params: dict[str, Any], seed: int | None) -> SolveOutput:
-        moments = moments_to_come(problem.demand.sale_probabilities())
+        moments = demand_moments(problem.demand)
         counted, displacement = self._counted(problem, moments, params, seed)
         batch, table = self._table(problem, moments, counted, params)
         return self._output(problem, moments, batch, table, counted, displacement, params)
@@ -95,7 +95,7 @@ class EmsrbHeuristicBidPrices(Solver):
         the state only through the counted fares (with the default prorated basis, not at all),
         so a re-solve round computes one EMSR-b pass per period instead of one per state."""
         tables: dict[tuple[int, bytes], tuple[LegBatch, np.ndarray]] = {}
-        moments = moments_to_come(problems[0].demand.sale_probabilities())  # one demand model
+        moments = demand_moments(problems[0].demand)  # one demand model
         outs = []
         for problem, seed in zip(problems, seeds, strict=True):
             counted, displacement = self._counted(problem, moments, params, seed)

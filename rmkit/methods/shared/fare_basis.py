@@ -41,8 +41,10 @@ class's fare is the demand-weighted mean of its members' counted fares.
 
 from __future__ import annotations
 
+import weakref
 from collections.abc import Callable
 from dataclasses import dataclass
+from functools import cached_property
 
 import numpy as np
 
@@ -195,11 +197,17 @@ class LegClasses:
         v = np.asarray(per_product, dtype=np.float64)
         if self.n_classes == 0:
             return np.zeros((*v.shape[:-1], 0))
-        order = np.argsort(np.where(self.bucket >= 0, self.bucket, self.n_classes), kind="stable")
-        order = order[: np.count_nonzero(self.bucket >= 0)]
-        starts = np.searchsorted(self.bucket[order], np.arange(self.n_classes))
+        order, starts = self._members
         # index sums, not a 0/1 matrix product: no BLAS call, exact, cheap for tall tables
         return np.add.reduceat(v[..., order], starts, axis=-1)
+
+    @cached_property
+    def _members(self) -> tuple[np.ndarray, np.ndarray]:
+        """Products ordered by class, and where each class starts (computed once: the leg
+        heuristics total a dozen quantities over the same classes)."""
+        order = np.argsort(np.where(self.bucket >= 0, self.bucket, self.n_classes), kind="stable")
+        order = order[: np.count_nonzero(self.bucket >= 0)]
+        return order, np.searchsorted(self.bucket[order], np.arange(self.n_classes))
 
     def class_means(self, per_product: np.ndarray, weights: np.ndarray) -> np.ndarray:
         """``(k,)`` weighted mean of a per-product quantity over each class (plain if no weight)."""
@@ -228,6 +236,26 @@ def leg_classes(counted: np.ndarray, weights: np.ndarray, n_buckets: int | None 
 
 
 # ------------------------------------------------------------------ what the leg solvers share
+_MOMENTS: weakref.WeakKeyDictionary = weakref.WeakKeyDictionary()
+
+
+def demand_moments(demand) -> tuple[np.ndarray, np.ndarray]:
+    """:func:`moments_to_come` of the demand model's sale probabilities, kept (read-only) per
+    model: models do not change, and a re-solve round asks for them once per state."""
+    try:
+        return _MOMENTS[demand]
+    except (KeyError, TypeError):
+        pass
+    out = moments_to_come(demand.sale_probabilities())
+    for a in out:
+        a.setflags(write=False)
+    try:
+        _MOMENTS[demand] = out
+    except TypeError:  # a model that cannot be weakly referenced: computed each time
+        pass
+    return out
+
+
 def moments_to_come(probabilities: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """``(T+1, n)`` mean and variance of each product's requests in periods t..T-1.
 
