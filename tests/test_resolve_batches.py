@@ -36,7 +36,7 @@ def _assert_same(a, b) -> None:
 
 
 @pytest.mark.parametrize(("method", "settings"), [
-    ("dpd", {}), ("dlp", {}), ("emsrb", {}),
+    ("dpd", {}), ("dlp", {}), ("emsrb", {}), ("rlp", {}),
     # one table per period (prorated fares), and one per distinct displaced fares (network)
     ("emsrb-heuristic", {}), ("emsrb-heuristic", {"fare_basis": "network"}),
     ("emsrb-heuristic", {"fare_basis": "network", "displacement_iterations": 1}),
@@ -48,6 +48,33 @@ def test_a_batch_of_re_solves_equals_one_solve_per_state(method, settings):
     batch = solver.resolve(net, dem, states, [None] * len(states), ResolveSession())
     for state, got in zip(states, batch, strict=True):
         _assert_same(got, solver.solve(net, dem, state=state))
+
+
+def _sharing_methods() -> list[str]:
+    """Registered independent-demand methods whose re-solve rounds differ from a loop of solves:
+    they override ``_resolve`` or run their states side by side."""
+    from rmkit.methods.base import Solver, load_all
+
+    return sorted(name for name, cls in load_all().items()
+                  if "independent" in cls.demand_kinds
+                  and (cls._resolve is not Solver._resolve or cls.solves_side_by_side))
+
+
+@pytest.mark.parametrize("method", _sharing_methods())
+def test_a_round_equals_its_states_re_solved_one_call_at_a_time(method):
+    """Whatever a method shares within a round (leg DPs, tables, threads), a round gives the
+    numbers of the same states re-solved one call at a time in one session."""
+    net, dem = _problem()
+    states = _states(net)
+    seeds = list(range(len(states)))
+    batch = get_solver(method).resolve(net, dem, states, seeds, ResolveSession())
+    solver, session = get_solver(method), ResolveSession()
+    for state, seed, got in zip(states, seeds, batch, strict=True):
+        _assert_same(got, solver.resolve(net, dem, [state], [seed], session)[0])
+
+
+def test_the_sharing_methods_are_found():
+    assert {"dpd", "emsrb-heuristic", "lr", "rlp"} <= set(_sharing_methods())
 
 
 def test_lr_re_solves_do_not_depend_on_how_they_are_batched():
