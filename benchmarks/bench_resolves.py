@@ -85,6 +85,9 @@ def bench_dpd(paths: int = 300) -> None:
     name = "rm_200_4_1.0_8.0"
     s = _load(name)
     arrivals = s.demand.sample_arrivals(paths, SEED)
+    warm = s.demand.sample_arrivals(3, SEED + 1)
+    for source in (make_policy("dpd"), OneStateAtATime("dpd")):  # kernels loaded, not timed
+        _run(s.network, s.demand, source, warm)
     batched, batched_s = _run(s.network, s.demand, make_policy("dpd"), arrivals)
     single, single_s = _run(s.network, s.demand, OneStateAtATime("dpd"), arrivals)
     same = np.array_equal(batched.revenue, single.revenue)

@@ -103,3 +103,26 @@ def test_demand_to_come_samples_count_the_streams():
     counts = dem.sample_demand_to_come(30, seed=5, period=10)
     streams = dem.sample_streams(30, seed=5)[:, 10:]
     np.testing.assert_array_equal(counts[:, 1], (streams == 1).sum(axis=1))
+
+
+def test_grid_strides_refuse_a_grid_beyond_64_bit_indices_and_replay_needs_them_only_to_trace():
+    """16 legs of 20 seats make 21**16 (about 1.4e21) states: the flat index would wrap around
+    silently in int64 arithmetic (numpy only warned "overflow encountered in scalar multiply",
+    seen in sweeps of the 8-spoke public instances)."""
+    import warnings
+
+    from rmkit.errors import ProblemTooLargeError
+    from rmkit.model.network import grid_strides
+    from rmkit.workflows.simulate import simulate
+
+    np.testing.assert_array_equal(grid_strides(np.array([2, 3, 1])), [8, 2, 1])
+    assert grid_strides(np.full(14, 20))[0] == 21**13  # 21**14 states still fit
+    with pytest.raises(ProblemTooLargeError, match=r"1,430,568,690,241,985,328,321 states"):
+        grid_strides(np.full(16, 20))
+    legs = [(f"L{i}", 20) for i in range(16)]
+    products = [(f"P{i}", 100.0, [f"L{i}"]) for i in range(16)]
+    net = Network.build(legs, products, name="sixteen-legs")
+    dem = DemandModel(np.full((10, 16), 0.05))
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        simulate(net, dem, "fcfs", paths=5, seed=1)

@@ -22,7 +22,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from rmkit.errors import InputError, quoted
+from rmkit.errors import InputError, ProblemTooLargeError, quoted
 from rmkit.limits import MAX_COUNT, MAX_FARE
 
 
@@ -51,11 +51,17 @@ class Product:
 def grid_strides(capacities: np.ndarray) -> np.ndarray:
     """Row-major strides over the state grid ``(c_0+1, ..., c_{m-1}+1)``, last leg stride 1:
     the flat index of seats left x is ``sum_i x_i * stride_i`` (exact DP, stored policies)."""
-    sizes = np.asarray(capacities, dtype=np.int64) + 1
-    strides = np.ones(sizes.size, dtype=np.int64)
-    for i in range(sizes.size - 2, -1, -1):
+    sizes = [int(c) + 1 for c in np.asarray(capacities).ravel()]
+    strides = [1] * len(sizes)
+    for i in range(len(sizes) - 2, -1, -1):  # Python integers: no silent wrap-around
         strides[i] = strides[i + 1] * sizes[i + 1]
-    return strides
+    total = strides[0] * sizes[0] if sizes else 1
+    if total > np.iinfo(np.int64).max:
+        raise ProblemTooLargeError(
+            f"capacities: the state grid has {total:,} states, more than 64-bit flat indices "
+            "hold; state-by-state methods and traces cannot run on this network"
+        )
+    return np.array(strides, dtype=np.int64)
 
 
 def _check_id(value: object, field: str) -> None:

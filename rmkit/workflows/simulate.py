@@ -210,7 +210,9 @@ def replay(
     points = resolve_periods(n_periods, resolve) if resolving else np.zeros(1, np.int64)
     every_sale = bool(resolve_every_sale) and resolving and control.sale_sensitive
     book = _Book.start(network, n_paths, demand.n_customer_types)
-    strides = grid_strides(network.capacities)
+    # flat states only for a trace: 16 legs of 20 seats already overflow 64-bit indices
+    strides = (grid_strides(network.capacities) if trace
+               else np.zeros(network.n_legs, dtype=np.int64))
     states = (np.zeros((n_paths, n_periods), dtype=np.int64) if trace
               else np.zeros((0, 0), dtype=np.int64))
     solves, solve_seconds = 0, 0.0
