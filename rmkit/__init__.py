@@ -17,7 +17,7 @@ from rmkit.results import SCHEMA, STATUSES, BookingState, SolveResult
 #: quick: name -> module.
 _LAZY = {
     "simulate": "rmkit.workflows.simulate",
-    "compare_policies": "rmkit.workflows.simulate",
+    "compare_policies": "rmkit.workflows.policy_comparison",
     "compare": "rmkit.workflows.compare",
     "calibrate": "rmkit.workflows.calibrate",
     "open_sweep": "rmkit.workflows.sweep",

@@ -16,7 +16,7 @@ def test_every_public_name_resolves():
 
 
 def test_workflow_functions_are_the_modules_own():
-    from rmkit.workflows.simulate import compare_policies
+    from rmkit.workflows.policy_comparison import compare_policies
     from rmkit.workflows.sweep import open_sweep
 
     assert rmkit.compare_policies is compare_policies

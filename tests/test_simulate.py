@@ -23,7 +23,8 @@ from rmkit.methods.base import SolveOutput
 from rmkit.model.demand import Arrivals
 from rmkit.results import StatePolicy
 from rmkit.workflows.policies import FixedPolicy, make_policy
-from rmkit.workflows.simulate import compare_policies, replay, resolve_periods, simulate, summarize
+from rmkit.workflows.policy_comparison import compare_policies
+from rmkit.workflows.simulate import replay, resolve_periods, simulate, summarize
 from tests.conftest import instance_path
 from tests.instances import brute_force_values, random_problem, small_problem
 from tests.published import POLICY_REVENUE

@@ -13,8 +13,9 @@ Statistics
 ----------
 For per-path revenues ``R_1 .. R_n`` the estimate is the mean ``Rbar``, its standard error
 ``s / sqrt(n)`` with ``s`` the sample standard deviation, and the 95% confidence interval
-``Rbar +- t_{0.975, n-1} s / sqrt(n)`` (Student t). Two policies a, b on the same paths are compared
-through ``D_k = R_ak - R_bk``: mean ``Dbar``, paired standard error ``s_D / sqrt(n)``; the unpaired
+``Rbar +- t_{0.975, n-1} s / sqrt(n)`` (Student t). Two policies a, b on the same paths are
+compared (:func:`rmkit.workflows.policy_comparison.compare_policies`) through
+``D_k = R_ak - R_bk``: mean ``Dbar``, paired standard error ``s_D / sqrt(n)``; the unpaired
 standard error ``sqrt(s_a^2 + s_b^2) / sqrt(n)``, which ignores the pairing, is reported beside it
 for contrast. ``Var(D) = s_a^2 + s_b^2 - 2 cov(a, b)``, so the paired one is smaller whenever the
 two revenues are positively correlated, as they are when both face the same requests.
@@ -44,10 +45,9 @@ depend on how many other paths run beside it: the first k paths of a long run eq
 from __future__ import annotations
 
 import json
-import math
 import time
 import warnings
-from collections.abc import Mapping, Sequence
+from collections.abc import Mapping
 from contextlib import contextmanager
 from dataclasses import dataclass, field
 from typing import Any
@@ -61,7 +61,7 @@ from rmkit.model.demand import Arrivals, DemandModel, check_compatible
 from rmkit.model.network import Network, grid_strides
 from rmkit.workflows.policies import PolicySource, make_policy
 from rmkit.workflows.progress import Progress
-from rmkit.workflows.stats import CONFIDENCE, paired_differences, summarize
+from rmkit.workflows.stats import CONFIDENCE, summarize
 
 #: Refuse runs whose per-path arrays would need more memory than this (bytes).
 DEFAULT_MAX_BYTES = 4 * 2**30
@@ -328,7 +328,7 @@ def _warn_inexact(label: str, statuses: dict[str, int], solves: int, summary: st
 
 
 # ---------------------------------------------------------------- checks
-def _check_run(
+def check_run(
     network: Network, demand: DemandModel, paths: Any, seed: Any, resolve: Any, max_bytes: int
 ) -> None:
     from rmkit.errors import param_error
@@ -356,7 +356,7 @@ def _check_run(
 
 
 # ---------------------------------------------------------------- datasets
-def _path_dataset(outcome: Outcome, network: Network, demand: DemandModel):
+def path_dataset(outcome: Outcome, network: Network, demand: DemandModel):
     from rmkit import schema
 
     caps = np.asarray(network.capacities, dtype=np.float64)
@@ -464,7 +464,7 @@ def simulate(
     from rmkit.workflows.compiling import CompileWatch
     from rmkit.workflows.warnings_log import as_attr, recorded
 
-    _check_run(network, demand, paths, seed, resolve, max_bytes)
+    check_run(network, demand, paths, seed, resolve, max_bytes)
     source = make_policy(policy, dict(params or {}))
     arrivals = demand.sample_arrivals(int(paths), int(seed))
     with recorded() as messages, CompileWatch() as compiling:
@@ -474,163 +474,10 @@ def simulate(
     outcome.solve_seconds = max(outcome.solve_seconds - compiling.seconds, 0.0)
     for text in dict.fromkeys(messages):  # once each: the count is in the attrs
         warnings.warn(text, RuntimeWarning, stacklevel=2)
-    ds = _path_dataset(outcome, network, demand)
+    ds = path_dataset(outcome, network, demand)
     ds.attrs.update(_run_attrs(outcome, seed, paths, resolve, network))
     ds.attrs.update({"compile_seconds": float(compiling.seconds), "warnings": as_attr(messages)})
     return ds
 
 
 # ---------------------------------------------------------------- comparison
-def _labelled(policies: Sequence[Any] | Mapping[str, Any]) -> list[tuple[str | None, Any]]:
-    if isinstance(policies, Mapping):
-        return [(str(k), v) for k, v in policies.items()]
-    if isinstance(policies, (str, bytes)):
-        raise InputError("policies: give a list of policies (two or more), not one name")
-    return [(None, p) for p in policies]
-
-
-def _bound_value(bound: Any, network: Network, demand: DemandModel, seed: int
-                 ) -> tuple[float, float, str]:
-    """(value, standard error, source) of the upper bound or optimum to measure gaps against."""
-    from rmkit.methods.base import get_solver
-    from rmkit.results import SolveResult
-
-    if isinstance(bound, str):
-        solver = get_solver(bound)
-        if not (solver.tags.exact or solver.tags.upper_bound):
-            raise InputError(f"bound: {bound!r} is a heuristic, not an upper bound or optimum")
-        bound = solver.solve(network, demand, seed=seed)
-    if isinstance(bound, SolveResult):
-        se = bound.stderr
-        return bound.value, 0.0 if se is None else float(se), bound.method
-    try:
-        value = float(bound)
-    except (TypeError, ValueError):
-        value = math.nan
-    if not math.isfinite(value):
-        raise InputError(f"bound: must be a finite number, a method name or a result, got {bound!r}")
-    return value, 0.0, "given"
-
-
-def compare_policies(
-    network: Network,
-    demand: DemandModel,
-    policies: Sequence[Any] | Mapping[str, Any],
-    *,
-    paths: int,
-    seed: int,
-    resolve: int = 0,
-    resolve_every_sale: bool = False,
-    params: Mapping[str, Mapping[str, Any]] | None = None,
-    bound: Any = None,
-    max_bytes: int = DEFAULT_MAX_BYTES,
-):
-    """Simulate two or more policies on the same request streams and compare them in pairs.
-
-    Parameters
-    ----------
-    policies
-        A list of policies (as for :func:`simulate`; labelled by method name) or a mapping
-        label -> policy.
-    params
-        label -> settings, for policies given by name.
-    bound
-        Optional upper bound or optimum for the gaps: a number, a method name (``"exact"``,
-        ``"lr"``, ``"dlp"``, solved from the start) or a result.
-
-    Returns
-    -------
-    xarray.Dataset
-        Dims ``policy``, ``versus`` (the same labels), ``path``, ``product``, ``leg``: per-path
-        ``revenue`` and counts by policy, the summary by policy, and for every pair
-        ``difference_mean`` (policy minus versus), its paired ``difference_stderr`` and 95%
-        interval ``difference_ci_low`` / ``difference_ci_high``, and the unpaired
-        ``difference_stderr_unpaired`` for contrast. With a bound: ``bound``, ``gap`` (bound minus
-        mean revenue), ``gap_percent`` and the gap's interval.
-    """
-    import xarray as xr
-
-    from rmkit import schema
-
-    items = _labelled(policies)
-    if len(items) < 2:
-        raise InputError(f"policies: compare needs two or more policies, got {len(items)}")
-    _check_run(network, demand, paths, seed, resolve, max_bytes)
-    params = dict(params or {})
-    sources = []
-    for label, spec in items:
-        key = label if label is not None else (spec if isinstance(spec, str) else None)
-        source = make_policy(spec, dict(params.get(key, {})) if key is not None else None)
-        if label is not None:
-            source.label = label
-        sources.append(source)
-    labels = [s.label for s in sources]
-    if len(set(labels)) != len(labels):
-        raise InputError(f"policies: labels must be unique, got {labels}; pass a mapping")
-    unknown = sorted(set(params) - set(labels))
-    if unknown:
-        raise InputError(f"params: no policy labelled {unknown[0]!r}; labels: {', '.join(labels)}")
-    arrivals = demand.sample_arrivals(int(paths), int(seed))
-    outcomes = [
-        replay(network, demand, s, arrivals, seed=int(seed), resolve=int(resolve),
-               resolve_every_sale=resolve_every_sale)
-        for s in sources
-    ]
-    per_policy = [_path_dataset(o, network, demand) for o in outcomes]
-    ds = xr.concat(per_policy, dim="policy", join="exact")
-    ds = ds.assign_coords(policy=np.array(labels, dtype=object))
-    lead = ("policy",)
-    ds["control"] = schema.variable("control", np.array([o.control for o in outcomes],
-                                                        dtype=object), lead)
-    ds["parameters"] = schema.variable("parameters", np.array(
-        [json.dumps(o.parameters, sort_keys=True, default=str) for o in outcomes], dtype=object),
-        lead)
-    ds["solves"] = schema.variable("solves", np.array([o.solves for o in outcomes], np.int64), lead)
-    ds["seconds"] = schema.variable("seconds", np.array([o.seconds for o in outcomes]), lead)
-    _add_differences(ds, np.stack([o.revenue for o in outcomes]), labels)
-    if bound is not None:
-        _add_gaps(ds, *_bound_value(bound, network, demand, int(seed)))
-    ds.attrs.update(
-        {
-            "policies": json.dumps(labels),
-            "seed": int(seed),
-            "paths": int(paths),
-            "resolves": int(resolve),
-            "resolve_every_sale": int(bool(resolve_every_sale)),
-            "network": network.name,
-            "confidence": CONFIDENCE,
-            "rmkit_version": __version__,
-        }
-    )
-    return ds
-
-
-def _add_differences(ds, revenue: np.ndarray, labels: list[str]) -> None:
-    from rmkit import schema
-
-    d = paired_differences(revenue)
-    lead = ("policy", "versus")
-    ds.coords["versus"] = np.array(labels, dtype=object)
-    for name, values in (("difference_mean", d.mean), ("difference_stderr", d.stderr),
-                         ("difference_stderr_unpaired", d.stderr_unpaired),
-                         ("difference_ci_low", d.ci_low), ("difference_ci_high", d.ci_high)):
-        ds[name] = schema.variable(name, values, lead)
-
-
-def _add_gaps(ds, value: float, stderr: float, source: str) -> None:
-    from scipy.stats import norm
-
-    from rmkit import schema
-
-    mean = ds["revenue_mean"].values
-    se = np.sqrt(ds["revenue_stderr"].values ** 2 + stderr**2)
-    z = float(norm.ppf(0.5 + CONFIDENCE / 2))
-    gap = value - mean
-    lead = ("policy",)
-    ds["bound"] = schema.variable("bound", value, source=source)
-    ds["bound_stderr"] = schema.variable("bound_stderr", stderr)
-    ds["gap"] = schema.variable("gap", gap, lead)
-    ds["gap_percent"] = schema.variable(
-        "gap_percent", 100.0 * gap / value if value else np.full_like(gap, np.nan), lead)
-    ds["gap_ci_low"] = schema.variable("gap_ci_low", gap - z * se, lead)
-    ds["gap_ci_high"] = schema.variable("gap_ci_high", gap + z * se, lead)
