@@ -152,3 +152,40 @@ def test_lr_re_solves_side_by_side_equal_one_thread():
         numba.set_num_threads(before)
     for a, b in zip(one, two, strict=True):
         _assert_same(a, b)
+
+
+STDOUT_PROBE = """
+from concurrent.futures import ThreadPoolExecutor
+
+import numpy as np
+from rmkit import BookingState, get_solver
+from rmkit.methods.base import ResolveSession
+from rmkit.methods.shared.network_lp import quiet_highs
+from tests.instances import random_problem
+
+with ThreadPoolExecutor(4) as pool:  # models built side by side, many times
+    list(pool.map(lambda _: quiet_highs(), range(400)))
+net, dem = random_problem(31, n_legs=3, max_capacity=6, n_products=8, n_periods=20)
+states = [BookingState(t % 19, tuple(int(c) for c in net.capacities)) for t in range(60)]
+get_solver("rlp", samples=2).resolve(net, dem, states, list(range(60)), ResolveSession())
+print("stdout still reaches the terminal", flush=True)
+"""
+
+
+def test_solves_side_by_side_keep_stdout(tmp_path):
+    """Each HiGHS model is built with file descriptor 1 pointed at /dev/null (its banner would
+    corrupt --json output). Threads building models side by side once interleaved the swap and
+    left stdout on /dev/null for the rest of the process: `rmkit demo` printed nothing."""
+    import os
+    import subprocess
+    import sys
+    from pathlib import Path
+
+    root = Path(__file__).resolve().parents[1]
+    (tmp_path / "probe.py").write_text(STDOUT_PROBE)
+    for _ in range(3):  # the race was not certain on every run
+        out = subprocess.run([sys.executable, str(tmp_path / "probe.py")], capture_output=True,
+                             text=True, timeout=300, cwd=root,
+                             env={**os.environ, "PYTHONPATH": str(root)})
+        assert out.returncode == 0, out.stderr
+        assert "stdout still reaches the terminal" in out.stdout

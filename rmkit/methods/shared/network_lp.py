@@ -48,6 +48,7 @@ from __future__ import annotations
 
 import os
 import sys
+import threading
 from collections.abc import Sequence
 from dataclasses import dataclass
 
@@ -110,25 +111,32 @@ class LPBatch:
         return None
 
 
+#: File descriptor 1 is process-wide: solves running side by side in threads must not interleave
+#: their save / redirect / restore, or one restores the other's /dev/null and stdout is lost.
+_STDOUT_SWAP = threading.Lock()
+
+
 def quiet_highs():
     """A silent ``highspy.Highs``; its constructor prints a banner on stdout that would corrupt
-    ``--json`` output, so file descriptor 1 points at /dev/null while it is built."""
+    ``--json`` output, so file descriptor 1 points at /dev/null while it is built (one thread
+    at a time)."""
     import highspy
 
-    sys.stdout.flush()
-    try:
-        saved = os.dup(1)
-    except OSError:  # no file descriptor 1 (a detached process): nothing to protect
-        h = highspy.Highs()
-    else:
-        null = os.open(os.devnull, os.O_WRONLY)
+    with _STDOUT_SWAP:
+        sys.stdout.flush()
         try:
-            os.dup2(null, 1)
+            saved = os.dup(1)
+        except OSError:  # no file descriptor 1 (a detached process): nothing to protect
             h = highspy.Highs()
-        finally:
-            os.dup2(saved, 1)
-            os.close(saved)
-            os.close(null)
+        else:
+            null = os.open(os.devnull, os.O_WRONLY)
+            try:
+                os.dup2(null, 1)
+                h = highspy.Highs()
+            finally:
+                os.dup2(saved, 1)
+                os.close(saved)
+                os.close(null)
     h.setOptionValue("output_flag", False)
     # These LPs are small: waking HiGHS's worker threads costs more than they save (a warm
     # re-solve ran about 2.5x faster with one thread on the 8-spoke instances).
