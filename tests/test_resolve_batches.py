@@ -189,3 +189,27 @@ def test_solves_side_by_side_keep_stdout(tmp_path):
                              env={**os.environ, "PYTHONPATH": str(root)})
         assert out.returncode == 0, out.stderr
         assert "stdout still reaches the terminal" in out.stdout
+
+
+@pytest.mark.skipif(numba.get_num_threads() < 2, reason="one numba thread on this machine")
+def test_side_by_side_keeps_order_and_stops_at_the_first_error():
+    import threading
+    import time
+
+    from rmkit.methods.shared.side_by_side import side_by_side
+
+    assert side_by_side(lambda q: q * q, list(range(50))) == [q * q for q in range(50)]
+    started = []
+    lock = threading.Lock()
+
+    def work(q: int) -> int:
+        with lock:
+            started.append(q)
+        if q == 0:
+            raise ValueError("solve 0 failed")
+        time.sleep(0.01)
+        return q
+
+    with pytest.raises(ValueError, match="solve 0 failed"):
+        side_by_side(work, list(range(200)))
+    assert len(started) < 200  # the pieces not started were dropped, not run after the error

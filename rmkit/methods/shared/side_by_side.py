@@ -17,7 +17,9 @@ T = TypeVar("T")
 def side_by_side(work: Callable[[T], Any], items: Sequence[T]) -> list[Any]:
     """``[work(item) for item in items]``, in that order, over numba's thread count of threads.
 
-    An exception in one piece of work is raised here, as the serial loop would raise it."""
+    An exception in one piece of work (or Ctrl-C) is raised here, as the serial loop would raise
+    it, once the pieces already running have finished; ``Executor.map`` cancels the pieces not
+    started, so a round of hundreds of solves does not run on after an error."""
     import numba
 
     threads = min(numba.get_num_threads(), len(items))
