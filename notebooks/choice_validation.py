@@ -51,7 +51,8 @@ from rmkit.methods.independent_view import independent_demand
 from rmkit.model.families import generate
 from rmkit.model.independent import IndependentDemand
 from rmkit.model.scenario import load_scenario
-from rmkit.workflows.compare import compare, ranked
+from rmkit.workflows.compare import compare
+from rmkit.workflows.ranking import ranked
 
 # %% tags=["parameters"]
 # Size of the run: "full" for the study (the invented example examples/tallowmere-choice.toml),

@@ -38,7 +38,8 @@ import os
 from rmkit.cli.demo import example_path
 from rmkit.model.scenario import load_scenario
 from rmkit.workflows.calibrate import calibrate, calibration_report
-from rmkit.workflows.compare import compare, ranked
+from rmkit.workflows.compare import compare
+from rmkit.workflows.ranking import ranked
 from rmkit.workflows.plots import comparison_figure
 
 # %% tags=["parameters"]

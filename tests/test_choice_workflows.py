@@ -22,7 +22,8 @@ from rmkit.methods.base import ASSUMES_INDEPENDENT, assumption_of, get_solver
 from rmkit.model.families import generate
 from rmkit.model.scenario import load_scenario
 from rmkit.workflows.calibrate import calibrate, calibration_report
-from rmkit.workflows.compare import compare, ranked
+from rmkit.workflows.compare import compare
+from rmkit.workflows.ranking import ranked
 from tests.conftest import ROOT
 
 SMALL = {"spokes": 2, "alpha": 1.2, "periods": 60, "seed": 1}

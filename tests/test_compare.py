@@ -21,7 +21,9 @@ from rmkit import InputError, get_solver
 from rmkit.model.network import Network
 from rmkit.model.scenario import save_scenario, scenario_from_model
 from rmkit.results import SolveResult
-from rmkit.workflows.compare import check_allocation, check_paths, compare, ranked
+from rmkit.workflows.compare import compare
+from rmkit.workflows.ranking import ranked
+from rmkit.workflows.verification import check_allocation, check_paths
 from rmkit.workflows.visits import (
     Visits,
     policy_visits,

@@ -67,7 +67,8 @@ def test_partly_shared_paths_give_the_variance_of_a_difference_of_means():
 
 
 def test_compare_with_a_deterministic_bound_as_yardstick():
-    from rmkit.workflows.compare import compare, ranked
+    from rmkit.workflows.compare import compare
+    from rmkit.workflows.ranking import ranked
 
     net, dem = small_problem()
     ds = compare(net, dem, methods="dlp,lr", paths=200, seed=3, with_exact=False)

@@ -12,9 +12,9 @@ import xarray as xr
 from rmkit import schema
 from rmkit.controls import load_controls
 from rmkit.model.demand import demand_kinds
-from rmkit.workflows.compare import check_paths
 from rmkit.workflows.policies import FixedPolicy, NoSolvePolicy
 from rmkit.workflows.simulate import grid_strides, kernel_network, simulate
+from rmkit.workflows.verification import check_paths
 from tests.sim_reference import kernel_both_ways
 from tests.test_contract import kind_problem
 

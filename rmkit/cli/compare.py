@@ -91,7 +91,7 @@ def report(ds, out: str | None, plot: str | None, scenario=None,
            tables: list[str] | None = None) -> dict[str, Any]:
     """The JSON object of a comparison."""
     from rmkit.cli._report import provenance_json
-    from rmkit.workflows.compare import ranked
+    from rmkit.workflows.ranking import ranked
 
     attrs = ds.attrs
     return {
@@ -125,7 +125,7 @@ def _pm(mean: float | None, low: float | None, high: float | None, spec: str = "
 def ranking_table(ds) -> tuple[Table, list[str]]:
     """The ranked table (CSV columns and the printed cells) and notes on skipped methods."""
     from rmkit.methods.base import ASSUMES_INDEPENDENT
-    from rmkit.workflows.compare import ranked
+    from rmkit.workflows.ranking import ranked
 
     attrs = ds.attrs
     ref_kind = attrs["reference_kind"]
@@ -207,7 +207,7 @@ def bid_price_table(ds) -> Table:
 
 
 def comparison_notes(ds, notes: list[str]) -> list[str]:
-    from rmkit.workflows.compare import ranked
+    from rmkit.workflows.ranking import ranked
 
     attrs = ds.attrs
     ref = attrs["reference_kind"]

@@ -99,10 +99,10 @@ def tables(ds, scenario, out: dict[str, Any]) -> list[Table]:
     formats = [None, ",.1f", ",.1f", ",.1f", ",.2f", ",d", "d", "d", ",d", ".2f",
                ",.1f", ",.1f", ",.1f", ",.1f", ".2f"]
     if out["assumes_independent_demand"]:
-        from rmkit.methods.base import ASSUMES_INDEPENDENT
+        from rmkit.methods.base import assumption_label
 
         head.append("demand assumption")
-        row.append(f"{ASSUMES_INDEPENDENT} ({out['assumes_independent_demand']})")
+        row.append(assumption_label(out["assumes_independent_demand"]))
         formats = [*formats[:len(head) - 1], None]
     first = Table("summary", f"{scenario.name}: {out['policy']} ({out['control']} control), "
                   f"{out['paths']:,} paths, {out['resolves']} re-solves, seed {out['seed']}",

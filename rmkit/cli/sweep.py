@@ -78,12 +78,12 @@ def refuse_scenario_file(path: str) -> None:
 
 def _kind(ds, q: int) -> str:
     """The kind of method ``q``, labelled when it runs through the independent-demand view."""
-    from rmkit.methods.base import ASSUMES_INDEPENDENT
+    from rmkit.methods.base import assumption_label
 
     kind = str(ds["kind"].values[q])
-    approx = (str(ds["assumes_independent_demand"].values[q])
-              if "assumes_independent_demand" in ds.coords else "")
-    return f"{kind}; {ASSUMES_INDEPENDENT} ({approx})" if approx else kind
+    label = assumption_label(str(ds["assumes_independent_demand"].values[q])
+                             if "assumes_independent_demand" in ds.coords else "")
+    return f"{kind}; {label}" if label else kind
 
 
 def tables(ds, grid_name: str, report) -> list[Table]:

@@ -28,7 +28,9 @@ from numba import njit
 
 from rmkit.controls import register_control
 from rmkit.controls.base import Control, owned, where
+from rmkit.controls.table import BidPriceTableControl
 from rmkit.errors import SolverError
+from rmkit.kernels.replay import clears_bid_prices
 
 
 class RolloutArrays(NamedTuple):
@@ -59,7 +61,7 @@ def _base_revenue(ctrl, s, start, x0, x, net):
                 room = False
                 break
             bid += ctrl.table[row, x[i], i]
-        if room and fares[c] >= bid - 1e-9 * fares[c]:
+        if room and clears_bid_prices(fares[c], bid):
             for q in range(leg_ptr[c], leg_ptr[c + 1]):
                 x[leg_list[q]] -= 1
             total += fares[c]
@@ -80,7 +82,7 @@ def offers(ctrl, k, t, j, seats, memo, net):
         i = leg_list[q]
         sold[i] -= 1
         bid += ctrl.table[t - ctrl.t0, keep[i], i]
-    base = fares[j] >= bid - 1e-9 * fares[j]
+    base = clears_bid_prices(fares[j], bid)
     n = ctrl.streams.shape[0]
     total = 0.0
     square = 0.0
@@ -117,11 +119,7 @@ class RolloutControl(Control):
         if not cls.drives(result):
             raise SolverError(f"{where(result)}: the result holds no bid-price table and rollout "
                               "streams; solve it with lr-rollout")
-        table = owned(result["bid_price_table"], np.float64)
-        for i in range(network.n_legs):
-            if np.isnan(table[:, 1 : int(capacity[i]) + 1, i]).any():
-                raise SolverError(f"{where(result)}: bid_price_table has NaN for leg "
-                                  f"{network.legs[i].id!r} within its seats left")
+        t0, table = BidPriceTableControl.arrays(result, network, capacity)  # checked, owned
         streams = owned(result.payload["rollout_streams"], np.int32)
         if streams.ndim != 2 or streams.shape[1] != table.shape[0] or streams.shape[0] < 1:
             raise SolverError(f"{where(result)}: rollout_streams must be (streams >= 1, "
@@ -129,11 +127,10 @@ class RolloutControl(Control):
         z = float(result.payload.get("rollout_z", 0.0))
         if not z >= 0.0:
             raise SolverError(f"{where(result)}: rollout_z must be a number >= 0, got {z!r}")
-        return RolloutArrays(int(result.period), table, streams, z)
+        return RolloutArrays(t0, table, streams, z)
 
     @classmethod
     def example_result(cls, network, demand, seed):
-        from rmkit.controls.table import BidPriceTableControl
         from rmkit.results import SolveResult
 
         base = BidPriceTableControl.example_result(network, demand, seed)

@@ -361,11 +361,15 @@ class Solver:
 ASSUMES_INDEPENDENT = "assumes independent demand"
 
 
-def assumption_of(solver: Solver | type[Solver] | None) -> str:
-    """``"assumes independent demand (<approximation>)"`` for a method run through the
-    independent-demand view, else ``""``: how comparisons and sweeps label its rows."""
-    approximation = solver.tags.assumes_independent_demand if solver is not None else ""
+def assumption_label(approximation: str) -> str:
+    """``"assumes independent demand (<approximation>)"``, or ``""`` for none: how comparisons,
+    simulations and sweeps label a method run through the independent-demand view."""
     return f"{ASSUMES_INDEPENDENT} ({approximation})" if approximation else ""
+
+
+def assumption_of(solver: Solver | type[Solver] | None) -> str:
+    """:func:`assumption_label` of a solver's view approximation (``""``: none)."""
+    return assumption_label(solver.tags.assumes_independent_demand if solver is not None else "")
 
 
 def kind_of(solver: Solver | type[Solver]) -> str:

@@ -117,7 +117,7 @@ def _step_factor_ok(v: object) -> bool:
     return positive_float(v) and float(v) < 2.0  # type: ignore[arg-type]
 
 
-def _non_negative_float(v: object) -> bool:
+def non_negative_float(v: object) -> bool:
     return positive_float(v) or (isinstance(v, (int, float)) and not isinstance(v, bool) and v == 0)
 
 
@@ -172,26 +172,6 @@ def minimise_bound(
     over the last ``stable_window`` iterations: what a policy re-solved at that state uses has
     settled, though the bound may still fall a little.
     """
-    return _minimise(network, prob, capacity, start, tol=tol, max_iterations=max_iterations,
-                     step_factor=step_factor, stall_tol=stall_tol, warm=warm,
-                     stable_tol=stable_tol, stable_window=stable_window, mix=mix)
-
-
-def _minimise(
-    network: Network,
-    prob: np.ndarray,
-    capacity: np.ndarray,
-    start: np.ndarray,
-    *,
-    tol: float,
-    max_iterations: int,
-    step_factor: float,
-    stall_tol: float,
-    warm: bool,
-    stable_tol: float = 0.0,
-    stable_window: int = 0,
-    mix: bool = True,
-) -> LagrangianRun:
     from rmkit.kernels.decomposition import (
         average_and_lower_bound,
         leg_acceptance_each,
@@ -352,14 +332,14 @@ class LagrangianRelaxation(Solver):
         "tol": Param(1e-3, "a number > 0 (relative gap at which to stop)", positive_float),
         "max_iterations": Param(1000, "a whole number >= 1", positive_int),
         "stall_tol": Param(1e-5, "a number >= 0 (relative bound change at which to stop; 0: "
-                           "never)", _non_negative_float),
+                           "never)", non_negative_float),
         "step_factor": Param(1.0, "a number in (0, 2) (Polyak step factor)", _step_factor_ok),
         "warm_start": Param(False, "True or False", _bool_ok),
         "resolve_iterations": Param(RESOLVE_ITERATIONS, "a whole number >= 1 (budget of a "
                                     "re-solve in a simulation)", positive_int),
         "resolve_tol": Param(RESOLVE_TOL, "a number >= 0 (a re-solve in a simulation stops when "
                              "its bid prices at the state move by at most this fraction of the "
-                             "highest fare over 5 iterations; 0: never)", _non_negative_float),
+                             "highest fare over 5 iterations; 0: never)", non_negative_float),
     }
 
     def _solve(self, problem: Problem, params: dict[str, Any], seed: int | None) -> SolveOutput:
@@ -500,108 +480,6 @@ class LagrangianRelaxation(Solver):
         )
 
 
-#: Re-solves of ``lr-frequent``'s policy (at least; equally spaced over the horizon).
-FREQUENT_RESOLVES = 50
-
-
-@register
-class FrequentLagrangianRelaxation(LagrangianRelaxation):
-    """``lr`` bid prices re-solved often: at least ``resolves`` (default 50) equally spaced
-    periods of every simulated run, however few re-solves the run asks for.
-
-    The policy of H. Topaloglu (2009), "Using Lagrangian relaxation to compute capacity-dependent
-    bid prices in network revenue management", Operations Research 57(3):637-649, re-solved ten
-    times as often as that paper's protocol (5 re-solves). Frequent re-solving is affordable
-    because every re-solve of a run starts from the run's converged period-0 split restricted to
-    the periods left and stops as soon as the bid prices at its state settle (median about 11
-    subgradient iterations on the public instances; :meth:`LagrangianRelaxation._resolve`).
-    Measured with benchmarks/bench_better_policies.py (100 paired paths): on
-    rm_200_8_1.6_4.0, where the gap to the best bound is widest, 50 re-solves sell +51 +- 19 more
-    than 5 (paired standard error), 20 re-solves +28 +- 19; DPD re-solved more often loses
-    revenue, and the thresholded re-solved DLP (``dlp-threshold``, Bumpensanti & Wang 2020)
-    stays 3-6% below. The value is ``lr``'s bound; it is not a yardstick of its own
-    (``reference`` off), and "every method" leaves it out: name it (``--methods lr-frequent``),
-    since its simulation costs about eight times ``lr``'s with 5 re-solves.
-    """
-
-    name = "lr-frequent"
-    tags = Tags(upper_bound=True, capacity_dependent=True, control="table")
-    by_default = False
-    params = {
-        **LagrangianRelaxation.params,
-        "resolves": Param(FREQUENT_RESOLVES, "a whole number >= 1 (equally spaced re-solves of "
-                          "the policy, at least)", positive_int),
-    }
-
-    def policy_resolves(self) -> int:
-        return int(self.get_params()["resolves"])
-
-    def _solve(self, problem: Problem, params: dict[str, Any], seed: int | None) -> SolveOutput:
-        return super()._solve(problem, _lr_params(params), seed)
-
-    def _resolve(self, problems, params, seeds, session) -> list[SolveOutput]:
-        return super()._resolve(problems, _lr_params(params), seeds, session)
-
-
-def _lr_params(params: dict[str, Any]) -> dict[str, Any]:
-    return _without(params, "resolves")
-
-
-@register
-class RolloutLagrangianRelaxation(LagrangianRelaxation):
-    """One-step rollout on the ``lr`` bid-price table: a request is accepted when simulating the
-    ``lr`` table policy on from both outcomes, over ``samples`` request streams of its own,
-    says accepting pays (:mod:`rmkit.controls.rollout`).
-
-    Rollout: D. P. Bertsekas, J. N. Tsitsiklis and C. Wu (1997), "Rollout algorithms for
-    combinatorial optimization", Journal of Heuristics 3(3):245-262; its use on network revenue
-    management decompositions: D. Bertsimas and I. Popescu (2003), "Revenue management in a
-    dynamic network environment", Transportation Science 37(3):257-277. The base policy is the
-    capacity- and time-dependent bid-price table of H. Topaloglu (2009), Operations Research
-    57(3):637-649 (``lr``), re-solved as the simulation asks. The streams are drawn with the
-    solve's seed (independent of the simulated customers); both branches of a decision are
-    simulated on the same streams. The value is ``lr``'s bound.
-    """
-
-    name = "lr-rollout"
-    tags = Tags(upper_bound=True, capacity_dependent=True, control="rollout")
-    by_default = False
-    params = {
-        **LagrangianRelaxation.params,
-        "samples": Param(64, "a whole number >= 1 (request streams of the rollout)",
-                         positive_int),
-        "z": Param(2.0, "a number >= 0 (standard errors of evidence the rollout needs to "
-                   "overturn the lr table's own decision; 0: plain rollout)",
-                   _non_negative_float),
-    }
-
-    def _solve(self, problem: Problem, params: dict[str, Any], seed: int | None) -> SolveOutput:
-        if "samples" not in params:  # lr's own re-solve path: the streams are added after it
-            return super()._solve(problem, params, seed)
-        out = super()._solve(problem, _rollout_free(params), seed)
-        return _with_streams(out, problem, params, seed)
-
-    def _resolve(self, problems, params, seeds, session) -> list[SolveOutput]:
-        outs = super()._resolve(problems, _rollout_free(params), seeds, session)
-        return [_with_streams(o, p, params, s) for o, p, s in zip(outs, problems, seeds,
-                                                                  strict=True)]
-
-
-def _without(params: dict[str, Any], key: str) -> dict[str, Any]:
-    return {k: v for k, v in params.items() if k != key}
-
-
-def _rollout_free(params: dict[str, Any]) -> dict[str, Any]:
-    return {k: v for k, v in params.items() if k not in ("samples", "z")}
-
-
-def _with_streams(out: SolveOutput, problem: Problem, params: dict[str, Any],
-                  seed: int | None) -> SolveOutput:
-    """The rollout's own request streams from the problem's period, drawn with the solve's seed
-    shifted away from the simulator's customer streams of the same seed."""
-    draw = np.random.SeedSequence([int(seed or 0), 0x0_0011_4F11]).generate_state(1)[0]
-    streams = problem.demand.sample_streams(int(params["samples"]), int(draw))
-    out.payload["rollout_streams"] = np.ascontiguousarray(streams[:, problem.period :],
-                                                          dtype=np.int32)
-    out.payload["rollout_z"] = float(params["z"])
-    return out
+def without(params: dict[str, Any], *keys: str) -> dict[str, Any]:
+    """``params`` less the settings ``keys`` (a variant's own settings, before calling lr's)."""
+    return {k: v for k, v in params.items() if k not in keys}

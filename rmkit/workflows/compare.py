@@ -50,10 +50,8 @@ come from one more backward pass that records ``V_{t+1}`` at those states and th
 
 Independent verification
 ------------------------
-Whoever produced them, every allocation a method returns is re-checked against ``A y <= x,
-y >= 0`` and every simulated path against the network: seats sold on each leg never exceed its
-capacity, seats left equal capacity minus the seats the accepted products use, and revenue equals
-the fares of the accepted products. The ``check`` variable says ``ok`` or what failed.
+Whoever produced them, every allocation and every simulated path is re-checked against the
+network (:mod:`rmkit.workflows.verification`); the ``check`` variable says ``ok`` or what failed.
 """
 
 from __future__ import annotations
@@ -71,13 +69,14 @@ import numpy as np
 
 from rmkit._version import __version__
 from rmkit.errors import InputError, SolverError
-from rmkit.methods.base import ASSUMES_INDEPENDENT, kind_of
+from rmkit.methods.base import kind_of
 from rmkit.model.demand import DemandModel, check_compatible
 from rmkit.model.network import Network
 from rmkit.results import SolveResult
 from rmkit.workflows.compiling import CompileWatch
 from rmkit.workflows.progress import Progress, part
 from rmkit.workflows.reference import Reference, best_reference
+from rmkit.workflows.verification import check_allocation, check_paths
 from rmkit.workflows.visits import (
     Visits,
     exact_bid_price_table,
@@ -94,8 +93,6 @@ if TYPE_CHECKING:  # pragma: no cover
 
 DEFAULT_PATHS = 500
 DEFAULT_VISIT_PATHS = 200
-#: Relative slack when re-checking ``A y <= x`` on an LP allocation (solver rounding).
-ALLOCATION_TOLERANCE = 1e-7
 
 KINDS = ("optimum", "upper bound", "heuristic")
 ERROR_NAMES = (
@@ -225,51 +222,6 @@ def _collect(run: MethodRun) -> Iterator[None]:
             yield
         finally:
             run.warnings.extend(str(w.message).splitlines()[0] for w in caught)
-
-
-# ---------------------------------------------------------------- verification
-def check_allocation(network: Network, result: SolveResult) -> str:
-    """``ok`` when the result's allocation (if any) satisfies ``A y <= x, y >= 0``."""
-    if "allocation" not in result:
-        return "ok"
-    y = np.asarray(result["allocation"], dtype=np.float64)
-    x = np.asarray(result.capacity, dtype=np.float64)
-    used = network.incidence @ y
-    slack = ALLOCATION_TOLERANCE * (1.0 + x)
-    if not np.all(np.isfinite(y)):
-        return "allocation has non-finite entries"
-    if np.any(y < -ALLOCATION_TOLERANCE):
-        j = int(np.argmin(y))
-        return f"allocation of product {network.product_ids[j]!r} is {y[j]:.6g} < 0"
-    over = np.flatnonzero(used > x + slack)
-    if over.size:
-        i = int(over[0])
-        return (f"allocation uses {used[i]:.6g} seats of leg {network.leg_ids[i]!r}, which has "
-                f"{x[i]:.0f}")
-    return "ok"
-
-
-def check_paths(network: Network, sim: xr.Dataset) -> str:
-    """``ok`` when every simulated path respects capacity and its books add up."""
-    accepted = np.asarray(sim["accepted"].values, dtype=np.int64)
-    used = accepted @ network.incidence.T  # (path, leg)
-    caps = np.asarray(network.capacities, dtype=np.int64)
-    over = np.argwhere(used > caps[None, :])
-    if over.size:
-        k, i = (int(v) for v in over[0])
-        return f"path {k} sold {used[k, i]} seats on leg {network.leg_ids[i]!r} (capacity {caps[i]})"
-    left = np.asarray(sim["seats_left"].values, dtype=np.int64)
-    bad = np.argwhere(left != caps[None, :] - used)
-    if bad.size:
-        k, i = (int(v) for v in bad[0])
-        return f"path {k}: seats left on leg {network.leg_ids[i]!r} disagree with the sales"
-    revenue = accepted @ network.fares
-    got = np.asarray(sim["revenue"].values, dtype=np.float64)
-    wrong = np.flatnonzero(~np.isclose(got, revenue, rtol=1e-9, atol=1e-6))
-    if wrong.size:
-        k = int(wrong[0])
-        return f"path {k}: revenue {got[k]:.6g} differs from the fares sold {revenue[k]:.6g}"
-    return "ok"
 
 
 # ---------------------------------------------------------------- simulation
@@ -643,57 +595,3 @@ def _assemble(frame: _Frame, runs: Sequence[MethodRun]):
 def v_inf_to_nan(a: np.ndarray) -> np.ndarray:
     """Infinite exact differences (no seat there) stored as NaN in the per-visit arrays."""
     return np.where(np.isfinite(a), a, np.nan)
-
-
-# ---------------------------------------------------------------- the ranked table
-def _estimates(row: dict[str, Any], attrs: Mapping[str, Any]) -> dict[str, Any]:
-    """What a reader concludes from a row: whether its paired difference from the best policy
-    is significant (the 95% interval excludes 0), and its gap's 95% interval (stored with the
-    row, see :func:`compare`; files written before it was stored get ``100 (ref - revenue CI) /
-    ref``, without the yardstick's own error)."""
-    low, high = row["difference_ci_low"], row["difference_ci_high"]
-    significant = None if low is None or high is None else bool(low > 0 or high < 0)
-    if row.get("gap_percent_ci_low") is not None:
-        return {"difference_significant": significant}
-    ref = float(attrs.get("reference_value", math.nan))
-    gap_low = gap_high = None
-    if math.isfinite(ref) and ref and row["revenue_ci_low"] is not None:
-        gap_low = 100.0 * (ref - row["revenue_ci_high"]) / ref
-        gap_high = 100.0 * (ref - row["revenue_ci_low"]) / ref
-    return {"difference_significant": significant, "gap_percent_ci_low": gap_low,
-            "gap_percent_ci_high": gap_high}
-
-
-def ranked(ds: xr.Dataset) -> list[dict[str, Any]]:
-    """One row per method: simulated ones by mean revenue (best first), then bounds, then skipped."""
-    rows = []
-    for q, name in enumerate(ds.method.values.tolist()):
-        d = ds.isel(method=q)
-        row = {"method": name, "kind": str(d["kind"].values), "status": str(d["status"].values),
-               "reason": str(d["reason"].values), "check": str(d["check"].values),
-               "warning": str(d["warning"].values)}
-        approximation = (str(d["assumes_independent_demand"].values)
-                         if "assumes_independent_demand" in d.coords else "")
-        row["assumes_independent_demand"] = approximation or None
-        row["label"] = f"{ASSUMES_INDEPENDENT} ({approximation})" if approximation else ""
-        for var in ("value", "value_stderr", "revenue_mean", "revenue_stderr", "revenue_ci_low",
-                    "revenue_ci_high", "difference_mean", "difference_stderr",
-                    "difference_ci_low", "difference_ci_high", "gap_percent",
-                    "gap_percent_stderr", "gap_percent_ci_low", "gap_percent_ci_high",
-                    *ERROR_NAMES, "solve_seconds", "simulate_seconds", "compile_seconds"):
-            v = float(d[var].values) if var in d else math.nan
-            row[var] = v if math.isfinite(v) else None
-        row.update(_estimates(row, ds.attrs))
-        rows.append(row)
-
-    def order(row: dict[str, Any]) -> tuple[int, float]:
-        if row["status"] != "ran":
-            return (3, 0.0)
-        if row["revenue_mean"] is not None:
-            return (0, -row["revenue_mean"])
-        return (1, row["value"] if row["value"] is not None else math.inf)
-
-    rows.sort(key=order)
-    for rank, row in enumerate(rows, start=1):
-        row["rank"] = rank if row["revenue_mean"] is not None else None
-    return rows

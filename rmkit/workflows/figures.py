@@ -8,34 +8,19 @@ from __future__ import annotations
 
 import math
 from pathlib import Path
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING
 
 import numpy as np
+
+from rmkit.workflows.drawing import pyplot, save
 
 if TYPE_CHECKING:  # pragma: no cover
     import xarray as xr
 
 
-def _pyplot():
-    import matplotlib
-
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-
-    return plt
-
-
-def _save(fig: Any, path: str | Path | None, dpi: int) -> Any:
-    plt = _pyplot()
-    if path is not None:
-        fig.savefig(path, dpi=dpi, format="png")
-    plt.close(fig)
-    return fig
-
-
 def simulation_figure(ds: xr.Dataset, path: str | Path | None = None, *, dpi: int = 150):
     """Revenue per path (histogram, mean and 95% interval) and mean load factor by leg."""
-    plt = _pyplot()
+    plt = pyplot()
     a = ds.attrs
     revenue = ds["revenue"].values
     with plt.style.context("seaborn-v0_8-whitegrid"):
@@ -71,14 +56,14 @@ def simulation_figure(ds: xr.Dataset, path: str | Path | None = None, *, dpi: in
         fig.suptitle(f"{a.get('network', '')}: policy {a.get('policy', '')}, "
                      f"{a.get('paths', '?')} paths, {a.get('resolves_done', 0)} re-solves, "
                      f"seed {a.get('seed', '?')}", fontsize=12)
-    return _save(fig, path, dpi)
+    return save(fig, path, dpi)
 
 
 def calibration_figure(ds: xr.Dataset, path: str | Path | None = None, *, dpi: int = 150):
     """Mean revenue on the search paths over the settings tried, default and tuned marked."""
     import json
 
-    plt = _pyplot()
+    plt = pyplot()
     a = ds.attrs
     searched = list(json.loads(a["searched"]))
     mean, se = ds["revenue_mean"].values, ds["revenue_stderr"].values
@@ -117,7 +102,7 @@ def calibration_figure(ds: xr.Dataset, path: str | Path | None = None, *, dpi: i
         ax.legend(fontsize=8)
         ax.set_title(f"calibrating {a['heuristic']}: {a['evaluations']} settings on {a['paths']} "
                      f"paths (seed {a['seed']}); fresh-path figures are in the table", fontsize=11)
-    return _save(fig, path, dpi)
+    return save(fig, path, dpi)
 
 
 def sweep_figure(ds: xr.Dataset, path: str | Path | None = None, *, dpi: int = 150):
@@ -125,7 +110,7 @@ def sweep_figure(ds: xr.Dataset, path: str | Path | None = None, *, dpi: int = 1
     (else of its optimum, else of its best value), with the value written in each cell."""
     from rmkit.workflows.sweep import value_table
 
-    plt = _pyplot()
+    plt = pyplot()
     values = value_table(ds)
     v = np.asarray(values.values, dtype=float)  # (scenario, method)
     kinds = [str(k) for k in ds["kind"].values]
@@ -154,4 +139,4 @@ def sweep_figure(ds: xr.Dataset, path: str | Path | None = None, *, dpi: int = 1
         fig.colorbar(image, ax=ax, label=f"% of {what} of the scenario")
         ax.set_title(f"{ds.attrs.get('name', '')}: value by scenario and method (mean over "
                      "seeds)", fontsize=11)
-    return _save(fig, path, dpi)
+    return save(fig, path, dpi)

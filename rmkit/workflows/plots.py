@@ -60,10 +60,9 @@ def comparison_figure(
     dpi: int = 150,
 ):
     """Draw the comparison; save it to ``path`` (PNG) when given. Returns the Figure."""
-    import matplotlib
+    from rmkit.workflows.drawing import pyplot
 
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
+    plt = pyplot()
 
     legs = ds.leg.values.tolist()
     leg = busiest_leg(ds) if leg is None else leg

@@ -208,23 +208,22 @@ def leg_values(prob: np.ndarray, fares: np.ndarray, capacities: np.ndarray) -> n
 
 def product_legs(network: Network) -> np.ndarray:
     """``(n_products, k_max)`` int64: the legs of each product, padded with -1."""
-    a = network.incidence
-    k_max = int(a.sum(axis=0).max())
-    out = np.full((network.n_products, k_max), -1, dtype=np.int64)
-    for j in range(network.n_products):
-        legs = np.flatnonzero(a[:, j])
-        out[j, : legs.size] = legs
-    return out
+    return _padded_rows(network.incidence.T)
 
 
 def leg_products(network: Network) -> np.ndarray:
     """``(n_legs, k_max)`` int64: the products using each leg, ascending, padded with -1."""
-    a = network.incidence
-    k_max = int(a.sum(axis=1).max(initial=0))
-    out = np.full((network.n_legs, max(k_max, 1)), -1, dtype=np.int64)
-    for i in range(network.n_legs):
-        products = np.flatnonzero(a[i])
-        out[i, : products.size] = products
+    return _padded_rows(network.incidence)
+
+
+def _padded_rows(mask: np.ndarray) -> np.ndarray:
+    """Row r lists the columns where ``mask[r]`` is non-zero, ascending, padded with -1 (at
+    least one column, so a kernel can always index it)."""
+    width = max(int((mask != 0).sum(axis=1).max(initial=0)), 1)
+    out = np.full((mask.shape[0], width), -1, dtype=np.int64)
+    for r in range(mask.shape[0]):
+        cols = np.flatnonzero(mask[r])
+        out[r, : cols.size] = cols
     return out
 
 

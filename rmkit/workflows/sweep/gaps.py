@@ -175,10 +175,9 @@ def gap_rows(table: xr.Dataset) -> list[list[Any]]:
 def gap_figure(table: xr.Dataset, path: str | Path | None = None, *, dpi: int = 150):
     """The gap per scenario with its 95% interval, coloured by the best policy, and the median
     and maximum as lines."""
-    import matplotlib
+    from rmkit.workflows.drawing import pyplot, save
 
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
+    plt = pyplot()
     names = [str(s) for s in table.scenario.values]
     gap = table["gap_percent"].values
     low, high = table["gap_percent_ci_low"].values, table["gap_percent_ci_high"].values
@@ -203,10 +202,7 @@ def gap_figure(table: xr.Dataset, path: str | Path | None = None, *, dpi: int = 
         ax.set_title(f"{table.attrs.get('name') or 'sweep'}: best policy vs best bound, "
                      "95% intervals", fontsize=11)
         ax.legend(fontsize=8, loc="upper left")
-    if path is not None:
-        fig.savefig(path, dpi=dpi, format="png")
-    plt.close(fig)
-    return fig
+    return save(fig, path, dpi)
 
 
 def write_gap_table(table: xr.Dataset, prefix: str | Path) -> dict[str, Path]:
