@@ -98,3 +98,22 @@ def test_unknown_method_lists_valid_ones():
 def test_bad_state_is_a_clear_error():
     out = rmkit("bidprices", str(EXAMPLE), "--method", "dlp", "--period", "9999")
     assert out.returncode == 2 and "--period" in out.stderr
+
+
+def test_bound_solves_the_exact_dp_without_its_decision_table():
+    # the example's DP needs 0.147 GiB with the decisions (what a policy replays) and 0.029 GiB
+    # without: 'rmkit bound' reads only the value, so a limit between the two still solves it
+    out = rmkit("bound", str(EXAMPLE), "--method", "exact", "--param", "max_memory_gb=0.06",
+                "--json")
+    assert out.returncode == 0, out.stderr
+    data = json.loads(out.stdout)
+    assert data["parameters"]["keep_decisions"] is False
+    from rmkit import get_solver, load_scenario
+
+    example = load_scenario(EXAMPLE)
+    full = get_solver("exact").solve(example.network, example.demand)  # decisions kept
+    assert full.policy.bits.shape[0] == 300
+    assert data["value"] == full.value
+    asked = rmkit("bound", str(EXAMPLE), "--method", "exact", "--param", "max_memory_gb=0.06",
+                  "--param", "keep_decisions=true")  # an explicit setting still wins
+    assert asked.returncode == 2 and "0.147 GiB" in asked.stderr

@@ -315,3 +315,12 @@ def test_bound_command_on_the_bundled_example(capsys):
     assert main(["bound", str(EXAMPLE), "--method", "exact", "--json"]) == 0
     out = json.loads(capsys.readouterr().out)
     assert out["kind"] == "optimum" and out["value"] > 0
+
+
+def test_for_value_drops_the_decisions_unless_asked():
+    from rmkit import get_solver
+
+    assert get_solver("exact").for_value().get_params()["keep_decisions"] is False
+    assert get_solver("exact", keep_decisions=True).for_value().get_params()["keep_decisions"]
+    dlp = get_solver("dlp")
+    assert dlp.for_value() is dlp  # nothing to drop

@@ -56,7 +56,7 @@ def run(args: argparse.Namespace) -> int:
         if "samples" not in solver_probe.params:
             raise InputError(f"--samples: method {args.method!r} does not sample")
         settings["samples"] = args.samples
-    solver = get_solver(args.method, **settings)
+    solver = get_solver(args.method, **settings).for_value()  # nothing here replays a policy
     tags = solver.tags
     if not (tags.exact or tags.upper_bound):
         raise InputError(

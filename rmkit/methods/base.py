@@ -160,6 +160,9 @@ class Solver:
     #: ``nogil`` kernels). Numbers do not change; a method whose re-solves share work overrides
     #: :meth:`_resolve` instead.
     solves_side_by_side: ClassVar[bool] = False
+    #: Settings that skip what only the method's policy needs (the exact DP's decision table);
+    #: a caller that wants just the value applies them through :meth:`for_value`.
+    value_only_settings: ClassVar[Mapping[str, Any]] = {}
 
     def policy_resolves(self) -> int:
         """Re-solves the method's policy is defined with: the simulator re-solves it at no fewer
@@ -174,6 +177,15 @@ class Solver:
                 f"{self.name}: unknown parameter {unknown[0]!r}; valid parameters: {valid}"
             )
         self._settings = dict(settings)
+
+    def for_value(self) -> Solver:
+        """This solver for a caller that reads the value and bid prices but never replays the
+        policy (``rmkit bound``, a sweep's bounds): :attr:`value_only_settings` added under the
+        settings given, so an explicit setting still wins. The value is the same either way;
+        the solve may take less memory and time."""
+        if not self.value_only_settings:
+            return self
+        return type(self)(**{**self.value_only_settings, **self._settings})
 
     def get_params(self) -> dict[str, Any]:
         """Every setting, defaults filled in, as given (not validated)."""

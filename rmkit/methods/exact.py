@@ -79,6 +79,7 @@ class ExactDP(Solver):
     )
     demand_kinds = ("independent", "choice")
     refusal = ProblemTooLargeError
+    value_only_settings = {"keep_decisions": False}  # the decision table is the policy's alone
     params = {
         "max_memory_gb": Param(DEFAULT_MAX_MEMORY_GB, "a number of GiB > 0", positive_float),
         "keep_decisions": Param(True, "True or False", _is_bool),

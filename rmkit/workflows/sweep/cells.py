@@ -108,7 +108,7 @@ def _solve_value(task: CellTask) -> dict[str, Any]:
     from rmkit.methods.base import get_solver
 
     spec = task.cell.method
-    solver = get_solver(spec.method, **spec.params)
+    solver = get_solver(spec.method, **spec.params).for_value()  # a bound: no policy replayed
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         res = solver.solve(task.network, task.demand, seed=task.cell.solver_seed)
