@@ -75,6 +75,15 @@ class Control:
         raise NotImplementedError
 
     @classmethod
+    def fixed_offer(cls, arrays: NamedTuple, network: Network) -> np.ndarray | None:
+        """``(n,)`` bool: the products offered whenever each of their legs has a seat, for a
+        control that looks at nothing else until it is recomputed (static bid prices); None
+        for the others. Under demand whose customers each ask for one product the simulator
+        then replays the control with a loop free of branches (:mod:`rmkit.kernels.fixed_offer`),
+        to the same numbers as :meth:`offers`, which must agree with it."""
+        return None
+
+    @classmethod
     def memory_width(cls, arrays: NamedTuple) -> int:
         """Whole numbers of per-path memory the control uses (0: none)."""
         return 0

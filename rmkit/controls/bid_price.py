@@ -13,7 +13,7 @@ import numpy as np
 from rmkit.controls import register_control
 from rmkit.controls.base import Control, owned, scaled_variables, where
 from rmkit.errors import SolverError
-from rmkit.kernels.replay import clears_bid_prices
+from rmkit.kernels.replay import ACCEPT_TOLERANCE, clears_bid_prices
 
 
 class BidPriceArrays(NamedTuple):
@@ -60,6 +60,11 @@ class BidPriceControl(Control):
             raise SolverError(f"{where(result)}: bid prices contain NaN; the solve did not "
                               "produce prices")
         return BidPriceArrays(bid, product_sums(bid, network))
+
+    @classmethod
+    def fixed_offer(cls, arrays, network) -> np.ndarray:
+        fares = np.asarray(network.fares, dtype=np.float64)  # the rule of clears_bid_prices
+        return fares >= arrays.product_bid - ACCEPT_TOLERANCE * fares
 
     @classmethod
     def scaled(cls, result, multiplier):

@@ -7,6 +7,8 @@ from __future__ import annotations
 
 from typing import NamedTuple
 
+import numpy as np
+
 from rmkit.controls import register_control
 from rmkit.controls.base import Control
 
@@ -35,6 +37,10 @@ class FirstComeFirstServed(Control):
     @classmethod
     def arrays(cls, result, network, capacity) -> FcfsArrays:
         return FcfsArrays(0)
+
+    @classmethod
+    def fixed_offer(cls, arrays, network) -> np.ndarray:
+        return np.ones(network.n_products, dtype=bool)
 
     @classmethod
     def example_result(cls, network, demand, seed):

@@ -178,6 +178,9 @@ class DemandModel(metaclass=_DemandMeta):
     # ------------------------------------------------------------ the simulator's queries
     #: Whether the simulator needs a purchase number per arrival (False: the type decides).
     needs_purchase_number: ClassVar[bool] = True
+    #: Whether a customer of type j asks for product j and nothing else (then a control with a
+    #: fixed offer is replayed without asking the demand kernel).
+    one_product_per_customer: ClassVar[bool] = False
 
     def sample_arrivals(self, n_paths: int, seed: int) -> Arrivals:
         """Customers of ``n_paths`` paths, a function of the seed; path k does not depend on

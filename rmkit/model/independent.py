@@ -66,6 +66,7 @@ class IndependentDemand(DemandModel):
     description: ClassVar[str] = "one request type per product; a request buys its product if open"
     spec_keys: ClassVar[tuple[str, ...]] = ("curve", "probabilities", "request")
     needs_purchase_number: ClassVar[bool] = False
+    one_product_per_customer: ClassVar[bool] = True
 
     probabilities: np.ndarray
     _to_come: np.ndarray = field(init=False, repr=False)

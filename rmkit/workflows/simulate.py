@@ -136,6 +136,34 @@ class _Book:
         return (self.seats, self.revenue, self.accepted, self.lost, self.memo, self.next_period)
 
 
+@dataclass(frozen=True)
+class _FixedOffer:
+    """The arrays of the loop for a fixed offer (:mod:`rmkit.kernels.fixed_offer`)."""
+
+    fare: np.ndarray
+    legs: np.ndarray
+
+    @classmethod
+    def start(cls, network: Network) -> _FixedOffer:
+        from rmkit.kernels.fixed_offer import padded_legs
+
+        fare = np.zeros(network.n_products + 1)
+        fare[:-1] = network.fares
+        return cls(fare, padded_legs(network.incidence))
+
+    def replay(self, offer: np.ndarray, customer: np.ndarray, paths: np.ndarray, stop: int,
+               book: _Book) -> None:
+        from rmkit.kernels.fixed_offer import replay_fixed_offer, replay_fixed_offer_parallel
+        from rmkit.kernels.replay import PARALLEL_MIN_PATHS
+
+        open_ = np.zeros(self.fare.size, dtype=np.int64)
+        open_[:-1] = offer
+        loop = (replay_fixed_offer_parallel if paths.size >= PARALLEL_MIN_PATHS
+                else replay_fixed_offer)
+        loop(customer, paths, stop, open_, self.fare, self.legs, book.seats, book.revenue,
+             book.accepted, book.lost, book.next_period)
+
+
 def incidence_lists(network: Network) -> tuple[np.ndarray, np.ndarray]:
     """CSR form of the incidence: product j uses legs ``leg_list[leg_ptr[j]:leg_ptr[j+1]]``."""
     a = np.asarray(network.incidence)
@@ -156,6 +184,8 @@ def _groups(book: _Book, pending: np.ndarray) -> list[tuple[int, np.ndarray, np.
     Groups come in lexicographic order of the state and list their paths in ascending order.
     """
     keys = np.column_stack([book.next_period[pending], book.seats[pending]])
+    if (keys == keys[0]).all():  # every path at the same state (the first round): no sort
+        return [(int(keys[0, 0]), keys[0, 1:], pending)]
     order = np.lexsort(keys.T[::-1])  # integer sorts; much faster than np.unique(axis=0)
     ordered = keys[order]
     starts = np.flatnonzero(np.any(ordered[1:] != ordered[:-1], axis=1)) + 1
@@ -210,6 +240,8 @@ def replay(
     points = resolve_periods(n_periods, resolve) if resolving else np.zeros(1, np.int64)
     every_sale = bool(resolve_every_sale) and resolving and control.sale_sensitive
     book = _Book.start(network, n_paths, demand.n_customer_types)
+    fixed = (_FixedOffer.start(network) if demand.one_product_per_customer and not trace
+             and not every_sale and not control.memory else None)
     # flat states only for a trace: 16 legs of 20 seats already overflow 64-bit indices
     strides = (grid_strides(network.capacities) if trace
                else np.zeros(network.n_legs, dtype=np.int64))
@@ -244,10 +276,14 @@ def replay(
                 book.memo[idx] = 0  # the control's memory restarts with each new control
             nxt = np.searchsorted(points, period, side="right")
             stop = int(points[nxt]) if nxt < points.size else n_periods
+            offer = control.fixed_offer(arrays, network) if fixed is not None else None
             with _numba_threads(n_threads):
-                loop_for(arrays, dem, idx.size)(
-                    arrays, dem, arrivals.customer, arrivals.uniform, idx, stop, every_sale, net,
-                    book.arrays(), states, strides)
+                if offer is not None:
+                    fixed.replay(offer, arrivals.customer, idx, stop, book)
+                else:
+                    loop_for(arrays, dem, idx.size)(
+                        arrays, dem, arrivals.customer, arrivals.uniform, idx, stop, every_sale,
+                        net, book.arrays(), states, strides)
             if progress is not None and time.perf_counter() - told > 0.1:
                 told = time.perf_counter()
                 progress(source.label, float(book.next_period.sum()), n_paths * n_periods)
