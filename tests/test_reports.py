@@ -304,3 +304,10 @@ def test_comparison_figure_draws_every_method_distinguishably():
         assert not {"emsrb", "davn"} & drawn
     legend = " ".join(t.get_text() for t in fig.legends[0].get_texts())
     assert "emsrb, davn: nested" in legend and "where it goes" in legend
+
+
+def test_csv_dash_is_refused_rather_than_made_a_folder(scenario, tmp_path):
+    out = rmkit("bound", str(scenario), "--method", "dlp", "--csv", "-", cwd=tmp_path)
+    assert out.returncode == 2 and "Traceback" not in out.stderr
+    assert out.stderr.strip().count("\n") == 0 and "--csv" in out.stderr and "'-'" in out.stderr
+    assert list(tmp_path.iterdir()) == []  # no folder named '-'

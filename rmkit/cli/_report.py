@@ -108,6 +108,9 @@ def check_table_target(target: str | None) -> None:
         return
     from rmkit.files import check_output
 
+    if target.strip() == "-":  # would otherwise become a folder named '-'
+        raise InputError("--csv: '-' (standard output) is not a table target; give FILE.csv, "
+                         "FILE.parquet or a folder, or use --json for output on stdout")
     p = Path(target)
     if p.suffix.lower() in TABLE_SUFFIXES:
         check_output(p, "--csv", TABLE_SUFFIXES)
