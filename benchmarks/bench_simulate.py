@@ -86,7 +86,7 @@ def loop_rates(network, demand, result, arrivals, expected: np.ndarray) -> dict[
     from rmkit.controls import get_control
     from rmkit.kernels.fixed_offer import replay_fixed_offer_parallel
     from rmkit.kernels.replay import replay_paths_parallel
-    from rmkit.workflows.simulate import _FixedOffer, kernel_network
+    from rmkit.workflows.simulate import FixedOfferLoop, kernel_network
 
     ctl = get_control("bid_price")
     arrays = ctl.arrays(result, network, network.capacities)
@@ -96,7 +96,7 @@ def loop_rates(network, demand, result, arrivals, expected: np.ndarray) -> dict[
              np.zeros(p, np.int64)]
     book = [a.copy() for a in start]
     paths = np.arange(p, dtype=np.int64)
-    fixed = _FixedOffer.start(network)
+    fixed = FixedOfferLoop.start(network)
     open_ = np.zeros(n + 1, np.int64)
     open_[:-1] = ctl.fixed_offer(arrays, network)
     net, dem = kernel_network(network), demand.kernel_data()

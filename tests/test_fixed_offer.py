@@ -13,7 +13,7 @@ import rmkit.kernels.fixed_offer as fixed_kernels
 from rmkit.controls import load_controls
 from rmkit.kernels.replay import replay_paths, replay_paths_parallel
 from rmkit.workflows.policies import FixedPolicy, NoSolvePolicy, make_policy
-from rmkit.workflows.simulate import _FixedOffer, grid_strides, kernel_network, replay
+from rmkit.workflows.simulate import FixedOfferLoop, grid_strides, kernel_network, replay
 from tests.instances import random_problem
 from tests.sim_reference import interpreted_kernels
 
@@ -49,7 +49,7 @@ def _general(arrays, dem, arrivals, paths, stop, net, book, parallel):
 
 
 def _fixed(offer, arrivals, paths, stop, net, book, loop):
-    fo = _FixedOffer.start(net)
+    fo = FixedOfferLoop.start(net)
     open_ = np.zeros(net.n_products + 1, np.int64)
     open_[:-1] = offer
     seats, revenue, accepted, lost, _, nxt = book
@@ -102,8 +102,8 @@ def test_replay_takes_the_fixed_offer_loop_to_the_same_outcome(control, monkeypa
     policy = FixedPolicy(result, control=ctl) if ctl.needs_result else NoSolvePolicy(ctl)
     arrivals = dem.sample_arrivals(400, 9)  # above PARALLEL_MIN_PATHS: the threaded loop
     calls = []
-    real = _FixedOffer.replay
-    monkeypatch.setattr(_FixedOffer, "replay", lambda self, *a: calls.append(1) or real(self, *a))
+    real = FixedOfferLoop.replay
+    monkeypatch.setattr(FixedOfferLoop, "replay", lambda self, *a: calls.append(1) or real(self, *a))
     fast = replay(net, dem, policy, arrivals, seed=9)
     assert calls
     monkeypatch.setattr(ctl, "fixed_offer", classmethod(lambda cls, arrays, network: None))
@@ -129,7 +129,7 @@ def test_resolved_bid_prices_take_the_fixed_offer_loop_to_the_same_outcome(monke
 def test_a_trace_or_every_sale_keeps_the_general_loop(monkeypatch):
     net, dem = random_problem(2, n_legs=2, max_capacity=4, n_products=5, n_periods=30)
     arrivals = dem.sample_arrivals(20, 1)
-    monkeypatch.setattr(_FixedOffer, "replay", lambda *a: pytest.fail("fixed loop used"))
+    monkeypatch.setattr(FixedOfferLoop, "replay", lambda *a: pytest.fail("fixed loop used"))
     traced = replay(net, dem, make_policy("dlp"), arrivals, seed=1, trace=True)
     assert traced.trace.shape == (20, 30)
     assert traced.trace[0, 0] == int(np.dot(net.capacities, grid_strides(net.capacities)))

@@ -137,14 +137,14 @@ class _Book:
 
 
 @dataclass(frozen=True)
-class _FixedOffer:
+class FixedOfferLoop:
     """The arrays of the loop for a fixed offer (:mod:`rmkit.kernels.fixed_offer`)."""
 
     fare: np.ndarray
     legs: np.ndarray
 
     @classmethod
-    def start(cls, network: Network) -> _FixedOffer:
+    def start(cls, network: Network) -> FixedOfferLoop:
         from rmkit.kernels.fixed_offer import padded_legs
 
         fare = np.zeros(network.n_products + 1)
@@ -240,7 +240,7 @@ def replay(
     points = resolve_periods(n_periods, resolve) if resolving else np.zeros(1, np.int64)
     every_sale = bool(resolve_every_sale) and resolving and control.sale_sensitive
     book = _Book.start(network, n_paths, demand.n_customer_types)
-    fixed = (_FixedOffer.start(network) if demand.one_product_per_customer and not trace
+    fixed = (FixedOfferLoop.start(network) if demand.one_product_per_customer and not trace
              and not every_sale and not control.memory else None)
     # flat states only for a trace: 16 legs of 20 seats already overflow 64-bit indices
     strides = (grid_strides(network.capacities) if trace
