@@ -88,6 +88,7 @@ from rmkit.methods.shared.leg_dp import (
     value_at,
 )
 from rmkit.methods.shared.side_by_side import side_by_side
+from rmkit.methods.shared.workspace import borrowed
 from rmkit.model.network import Network
 
 #: Initial level gap ``delta``: this fraction of the certified gap (cold start), or WARM_LEVEL
@@ -129,7 +130,7 @@ def _bool_ok(v: object) -> bool:
 class LagrangianRun:
     """The outcome of :func:`minimise_bound`."""
 
-    multiplier: np.ndarray  # (L, T, n) best split found
+    multiplier: np.ndarray | None  # (L, T, n) best split found (None when not kept)
     values: np.ndarray  # (L, T+1, cmax+1) leg values at that split
     bound: float
     lower_bound: float
@@ -163,6 +164,7 @@ def minimise_bound(
     stable_tol: float = 0.0,
     stable_window: int = 0,
     mix: bool = True,
+    keep_multiplier: bool = True,
 ) -> LagrangianRun:
     """Minimise the Lagrangian bound over fare splits from ``start`` (see the module docstring).
 
@@ -170,7 +172,8 @@ def minimise_bound(
     ``stable_window > 0`` the run also stops (status ``optimal_inaccurate``) once the record
     split's bid prices at the state have moved by at most ``stable_tol`` times the highest fare
     over the last ``stable_window`` iterations: what a policy re-solved at that state uses has
-    settled, though the bound may still fall a little.
+    settled, though the bound may still fall a little. ``keep_multiplier=False`` leaves the
+    best split out of the result (a simulator's re-solve reads the leg values only).
     """
     from rmkit.kernels.decomposition import (
         average_and_lower_bound,
@@ -185,115 +188,125 @@ def minimise_bound(
     x = np.ascontiguousarray(capacity, dtype=np.int64)
     fares = np.ascontiguousarray(network.fares)
     legs = product_legs(network)
-    n_legs, n_periods, n_products = start.shape
-    width = network.max_capacity + 1
-    # Three buffers of multipliers (current, best, next): a new record is kept by reference and
-    # the next iterate written into a free buffer, so no (L, T, n) copy per iteration. Entries
-    # the step never writes (single-leg products, p = 0, other legs) are equal in all three.
-    buffers = [np.array(start, dtype=np.float64, order="C", copy=True) for _ in range(3)]
-    current = best = 0
-    values = np.empty((n_legs, n_periods + 1, width))
-    best_values = np.empty_like(values) if not mix else values
-    occupancy = np.empty((n_legs, n_periods + 1, width))
-    # the kernels read each leg's own products only: a product's multiplier on a leg it does
-    # not use is 0 (the split and its projection never write there), and its sales there stay 0
-    on_leg = leg_products(network)
-    accept = np.zeros((n_legs, n_periods, n_products))
-    average = np.zeros_like(accept) if mix else accept  # without a mix nothing is averaged
-    direction = np.zeros_like(accept)
-    work = np.empty(2 * max(legs.shape[1], 1))
-    leg_index = np.arange(n_legs)
+    with borrowed() as ws:  # the working arrays of the previous solve on this thread
+        n_legs, n_periods, n_products = start.shape
+        width = network.max_capacity + 1
+        # Three buffers of multipliers (current, best, next): a new record is kept by reference and
+        # the next iterate written into a free buffer, so no (L, T, n) copy per iteration. Entries
+        # the step never writes (single-leg products, p = 0, other legs) are equal in all three.
+        buffers = [ws.copy_of(f"split{b}", np.asarray(start, np.float64)) for b in range(3)]
+        current = best = 0
+        values = ws.empty("values", (n_legs, n_periods + 1, width))
+        best_values = ws.empty("best_values", values.shape) if not mix else values
+        occupancy = ws.empty("occupancy", values.shape)
+        # the kernels read each leg's own products only: a product's multiplier on a leg it does
+        # not use is 0 (the split and its projection never write there), and its sales there stay 0
+        on_leg = leg_products(network)
+        accept = ws.zeros("accept", (n_legs, n_periods, n_products))
+        # without a mix nothing is averaged
+        average = ws.zeros("average", accept.shape) if mix else accept
+        direction = ws.zeros("direction", accept.shape)
+        work = np.empty(2 * max(legs.shape[1], 1))
+        leg_index = np.arange(n_legs)
 
-    record, lower = math.inf, -math.inf
-    bounds: list[float] = []
-    gaps: list[float] = []
-    # bid prices at the state of the record split, per iteration (for the stability rule)
-    below = np.maximum(x - 1, 0)
-    seats = x > 0
-    settled: list[np.ndarray] = []
-    scale = stable_tol * float(fares.max(initial=0.0))
-    reference = delta = path_bound = math.nan
-    path = 0.0
-    restart = 0
-    status = "iteration_limit"
-    for k in range(max_iterations):
-        lam = buffers[current]
-        leg_values_each(prob, lam, caps, on_leg, values)
-        value = float(values[leg_index, 0, x].sum())
-        leg_acceptance_each(prob, lam, caps, x, on_leg, values, occupancy, accept)
-        if value < record:
-            record, best = value, current
-            if not mix:  # the record's own values: no leg pass again at the end
-                np.copyto(best_values, values)
-            if stable_window:
-                settled.append(np.where(seats, values[leg_index, 1, x] - values[leg_index, 1, below],
-                                        0.0))
-        elif stable_window:
-            settled.append(settled[-1])
-        if k + 1 == 2 * restart or k == 0:  # restart the policy mix at iterations 1, 2, 4, ...
-            restart = k + 1
+        record, lower = math.inf, -math.inf
+        bounds: list[float] = []
+        gaps: list[float] = []
+        # bid prices at the state of the record split, per iteration (for the stability rule)
+        below = np.maximum(x - 1, 0)
+        seats = x > 0
+        settled: list[np.ndarray] = []
+        scale = stable_tol * float(fares.max(initial=0.0))
+        reference = delta = path_bound = math.nan
+        path = 0.0
+        restart = 0
+        status = "iteration_limit"
+        for k in range(max_iterations):
+            lam = buffers[current]
+            leg_values_each(prob, lam, caps, on_leg, values)
+            value = float(values[leg_index, 0, x].sum())
+            leg_acceptance_each(prob, lam, caps, x, on_leg, values, occupancy, accept)
+            if value < record:
+                record, best = value, current
+                if not mix:  # the record's own values: no leg pass again at the end
+                    np.copyto(best_values, values)
+                if stable_window:
+                    settled.append(np.where(seats, values[leg_index, 1, x] - values[leg_index, 1, below],
+                                            0.0))
+            elif stable_window:
+                settled.append(settled[-1])
+            if k + 1 == 2 * restart or k == 0:  # restart the policy mix at iterations 1, 2, 4, ...
+                restart = k + 1
+            if mix:
+                weight = 1.0 / (k + 2 - restart)
+                lower = max(lower, average_and_lower_bound(accept, average, weight, fares, legs))
+            gap = (max(record - lower, 0.0) / max(abs(record), 1e-12) if math.isfinite(lower)
+                   else math.nan)  # nothing certified yet (no policy mix: certified at the end)
+            bounds.append(record)
+            gaps.append(gap)
+            if gap <= tol:
+                status = "optimal"
+                break
+            if k >= STALL_WINDOW and bounds[k - STALL_WINDOW] - record < stall_tol * abs(record):
+                status = "optimal_inaccurate"
+                break
+            if (stable_window and k >= stable_window
+                    and float(np.abs(settled[k] - settled[k - stable_window]).max(initial=0.0))
+                    <= scale):
+                status = "optimal_inaccurate"
+                break
+            norm2 = split_direction(prob, accept, legs, direction)
+            if norm2 <= 0.0:
+                # Every leg of every product sells it with the same probability: this subgradient
+                # lies in the normal cone of the split constraints, so lambda is a minimiser (and
+                # this policy alone certifies its value).
+                lower = record = value
+                best = current
+                gaps[-1] = 0.0
+                bounds[-1] = record
+                status = "optimal"
+                break
+            # Goffin & Kiwiel (1999) path-based target level.
+            if k == 0:
+                reference = record
+                delta = (WARM_LEVEL * abs(record) if warm or not math.isfinite(lower)
+                         else LEVEL_FRACTION * (record - lower))
+            elif value <= reference - delta / 2:
+                reference, path = record, 0.0
+            elif path > path_bound:
+                reference, path, delta = record, 0.0, delta / 2
+            target = max(reference - delta, lower)
+            length = step_factor * (value - target) / math.sqrt(norm2)
+            if k == 0:
+                path_bound = PATH_FACTOR * length
+            path += length
+            following = next(b for b in range(3) if b not in (current, best))
+            step_and_project(lam, direction, step_factor * (value - target) / norm2, fares, legs,
+                             prob, work, buffers[following])
+            current = following
         if mix:
-            weight = 1.0 / (k + 2 - restart)
-            lower = max(lower, average_and_lower_bound(accept, average, weight, fares, legs))
-        gap = (max(record - lower, 0.0) / max(abs(record), 1e-12) if math.isfinite(lower)
-               else math.nan)  # nothing certified yet (no policy mix: certified at the end)
-        bounds.append(record)
-        gaps.append(gap)
-        if gap <= tol:
-            status = "optimal"
-            break
-        if k >= STALL_WINDOW and bounds[k - STALL_WINDOW] - record < stall_tol * abs(record):
-            status = "optimal_inaccurate"
-            break
-        if (stable_window and k >= stable_window
-                and float(np.abs(settled[k] - settled[k - stable_window]).max(initial=0.0))
-                <= scale):
-            status = "optimal_inaccurate"
-            break
-        norm2 = split_direction(prob, accept, legs, direction)
-        if norm2 <= 0.0:
-            # Every leg of every product sells it with the same probability: this subgradient
-            # lies in the normal cone of the split constraints, so lambda is a minimiser (and
-            # this policy alone certifies its value).
-            lower = record = value
-            best = current
-            gaps[-1] = 0.0
-            bounds[-1] = record
-            status = "optimal"
-            break
-        # Goffin & Kiwiel (1999) path-based target level.
-        if k == 0:
-            reference = record
-            delta = (WARM_LEVEL * abs(record) if warm or not math.isfinite(lower)
-                     else LEVEL_FRACTION * (record - lower))
-        elif value <= reference - delta / 2:
-            reference, path = record, 0.0
-        elif path > path_bound:
-            reference, path, delta = record, 0.0, delta / 2
-        target = max(reference - delta, lower)
-        length = step_factor * (value - target) / math.sqrt(norm2)
-        if k == 0:
-            path_bound = PATH_FACTOR * length
-        path += length
-        following = next(b for b in range(3) if b not in (current, best))
-        step_and_project(lam, direction, step_factor * (value - target) / norm2, fares, legs,
-                         prob, work, buffers[following])
-        current = following
-    if mix:
-        leg_values_each(prob, buffers[best], caps, on_leg, values)
-        best_values = values
-    else:  # the last iterate's policy certifies the gap (weight 1: no mix)
-        lower = max(lower, average_and_lower_bound(accept, accept, 1.0, fares, legs))
-        gaps[-1] = max(record - lower, 0.0) / max(abs(record), 1e-12)
-    return LagrangianRun(
-        multiplier=buffers[best],
-        values=best_values.copy(),
-        bound=record,
-        lower_bound=lower,
-        bound_history=np.array(bounds),
-        gap_history=np.array(gaps),
-        status=status,
-    )
+            leg_values_each(prob, buffers[best], caps, on_leg, values)
+            best_values = values
+        else:  # the last iterate's policy certifies the gap (weight 1: no mix)
+            lower = max(lower, average_and_lower_bound(accept, accept, 1.0, fares, legs))
+            gaps[-1] = max(record - lower, 0.0) / max(abs(record), 1e-12)
+        return LagrangianRun(
+            # the workspace's arrays stay with it: what the run keeps is copied out
+            multiplier=buffers[best].copy() if keep_multiplier else None,
+            values=best_values.copy(),
+            bound=record,
+            lower_bound=lower,
+            bound_history=np.array(bounds),
+            gap_history=np.array(gaps),
+            status=status,
+        )
+
+
+def _transposed(multiplier: np.ndarray | None) -> np.ndarray:
+    """``(T, L, n)``, the result's layout, of a run's kept ``(L, T, n)`` split."""
+    if multiplier is None:
+        raise ValueError("the run did not keep its multipliers (keep_multiplier=False)")
+    return multiplier.transpose(1, 0, 2)
 
 
 def _bound_at(network: Network, problem: Problem, lam: np.ndarray) -> float:
@@ -410,7 +423,7 @@ class LagrangianRelaxation(Solver):
                 split[:, problem.period :, :],
                 **{**_run_settings(params), "max_iterations": params["resolve_iterations"]},
                 warm=True, stable_tol=params["resolve_tol"], stable_window=RESOLVE_WINDOW,
-                mix=False,
+                mix=False, keep_multiplier=False,
             )
             return run, self._output(problem, run, params, warn=False, resolved=True)
 
@@ -460,17 +473,16 @@ class LagrangianRelaxation(Solver):
             )
         assert np.isclose(value_at(run.values, problem.capacity).sum(), run.bound, rtol=1e-9,
                           atol=1e-9)
+        kept = {} if resolved else {"multiplier": _transposed(run.multiplier)}
         variables = {
             "value": np.float64(run.bound),
-            "multiplier": run.multiplier.transpose(1, 0, 2),
+            **kept,
             "leg_value": leg_value,
             "bid_price_table": table,
             "bid_price": bid_prices_at(table, problem.capacity),
             "bound_history": run.bound_history,
             "gap_history": run.gap_history,
         }
-        if resolved:
-            del variables["multiplier"]
         return SolveOutput(
             variables=variables,
             status=run.status,
