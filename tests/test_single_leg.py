@@ -132,3 +132,31 @@ def test_bad_input_names_the_field():
         single_leg_dp(np.array([[0.7, 0.6]]), np.array([10.0, 5.0]), 2)
     with pytest.raises(InputError, match="fares"):
         single_leg_dp(np.array([[0.3]]), np.array([[10.0, 5.0]]), 2)
+
+
+def test_gathered_state_tables_equal_the_tables_of_every_leg_transposed():
+    # the numbers dpd's states had before the gather (leg_tables over every solved leg, then a
+    # transposed copy per state), NaN above each leg's capacity included
+    from rmkit.kernels.single_leg import gather_leg_tables, leg_values_batch
+    from rmkit.methods.shared.leg_dp import leg_tables
+
+    rng = np.random.default_rng(8)
+    n_periods, n = 12, 5
+    prob = rng.uniform(0, 0.15, (n_periods, n))
+    caps = np.array([3, 6, 4, 6, 2, 5])
+    fares = np.broadcast_to(rng.uniform(10, 90, (caps.size, 1, n)), (caps.size, n_periods, n))
+    solved = np.empty((caps.size, n_periods + 1, caps.max() + 1))
+    leg_values_batch(prob, np.ascontiguousarray(fares), caps, solved)
+    leg_value, table = leg_tables(solved, legs_last=False)
+    for mine in (np.array([0, 3, 4]), np.array([5, 1]), np.array([2])):
+        want_table = np.ascontiguousarray(table[mine].transpose(1, 2, 0))
+        want_value = np.ascontiguousarray(leg_value[mine].transpose(1, 2, 0))
+        for gather in (gather_leg_tables, gather_leg_tables.py_func):
+            got_table, got_value = np.empty(want_table.shape), np.empty(want_value.shape)
+            gather(solved, mine, got_table, got_value)
+            np.testing.assert_array_equal(got_table, want_table)  # NaN where NaN, bit for bit
+            np.testing.assert_array_equal(got_value, want_value)
+            only_table = np.empty(want_table.shape)
+            gather(solved, mine, only_table, np.empty((0, 0, 0)))
+            np.testing.assert_array_equal(only_table, want_table)
+    assert np.isnan(want_table).any()  # legs below the widest capacity are in the draw

@@ -40,6 +40,15 @@ def owned(a: Any, dtype: Any) -> np.ndarray:
     return np.array(a, dtype=dtype, order="C", copy=True)
 
 
+def read_only(a: Any, dtype: Any) -> np.ndarray:
+    """A C-ordered read-only view (a copy only when the dtype or order differs), so every call
+    hits the same compiled kernel signature: for large arrays the kernel only reads (a result's
+    bid-price table), where a copy per re-solved state is memory the OS must hand over fresh."""
+    out = np.ascontiguousarray(a, dtype=dtype).view()
+    out.setflags(write=False)
+    return out
+
+
 def where(result: SolveResult) -> str:
     return f"{result.method} (period {result.period}, seats {list(result.capacity)})"
 

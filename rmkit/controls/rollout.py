@@ -119,7 +119,7 @@ class RolloutControl(Control):
         if not cls.drives(result):
             raise SolverError(f"{where(result)}: the result holds no bid-price table and rollout "
                               "streams; solve it with lr-rollout")
-        t0, table = BidPriceTableControl.arrays(result, network, capacity)  # checked, owned
+        t0, table = BidPriceTableControl.arrays(result, network, capacity)  # checked
         streams = owned(result.payload["rollout_streams"], np.int32)
         if streams.ndim != 2 or streams.shape[1] != table.shape[0] or streams.shape[0] < 1:
             raise SolverError(f"{where(result)}: rollout_streams must be (streams >= 1, "

@@ -11,7 +11,7 @@ from typing import NamedTuple
 import numpy as np
 
 from rmkit.controls import register_control
-from rmkit.controls.base import Control, owned, scaled_variables, where
+from rmkit.controls.base import Control, read_only, scaled_variables, where
 from rmkit.errors import SolverError
 from rmkit.kernels.replay import clears_bid_prices
 
@@ -46,7 +46,7 @@ class BidPriceTableControl(Control):
     @classmethod
     def arrays(cls, result, network, capacity) -> TableArrays:
         cls.check_status(result)
-        table = owned(result["bid_price_table"], np.float64)
+        table = read_only(result["bid_price_table"], np.float64)
         for i in range(network.n_legs):  # every entry the control can look at must be a number
             if np.isnan(table[:, 1 : int(capacity[i]) + 1, i]).any():
                 raise SolverError(

@@ -102,3 +102,26 @@ def _leg_values_padded(prob: np.ndarray, fare: np.ndarray, capacity: int, produc
     for t in range(value.shape[0]):
         for x in range(capacity + 1, value.shape[1]):
             value[t, x] = np.nan
+
+
+@njit(cache=True)
+def gather_leg_tables(values: np.ndarray, legs: np.ndarray, table_out: np.ndarray,
+                      value_out: np.ndarray) -> None:
+    """One state's ``(T, cmax+1, L)`` tables from leg values shared between states.
+
+    ``values`` ``(U, T+1, cmax+1)`` holds solved legs; the state's leg l is ``values[legs[l]]``.
+    ``table_out[t, x, l] = V(t+1, x) - V(t+1, x-1)`` with ``+inf`` at x = 0 (the bid-price
+    table of :func:`rmkit.methods.shared.leg_dp.leg_tables`, the same subtractions);
+    ``value_out[t, x, l] = V(t, x)``, skipped when ``value_out`` is empty. Written straight into
+    the state's arrays, with no ``(U, T, cmax+1)`` table of every solved leg in between.
+    """
+    n_periods, width, n_legs = table_out.shape
+    keep_values = value_out.size > 0
+    for t in range(n_periods):
+        for x in range(width):
+            for leg in range(n_legs):
+                u = legs[leg]
+                table_out[t, x, leg] = (np.inf if x == 0
+                                        else values[u, t + 1, x] - values[u, t + 1, x - 1])
+                if keep_values:
+                    value_out[t, x, leg] = values[u, t, x]

@@ -37,8 +37,9 @@ import numpy as np
 
 from rmkit.methods.base import Param, Problem, SolveOutput, Solver, Tags, one_of, positive_int, register
 from rmkit.methods.dlp import leg_duals_many
-from rmkit.methods.shared.leg_dp import bid_prices_at, leg_tables
+from rmkit.methods.shared.leg_dp import bid_prices_at
 from rmkit.methods.shared.network_lp import DUAL_CHOICES
+from rmkit.methods.shared.workspace import Workspace, borrowed
 from rmkit.model.network import Network
 
 
@@ -83,7 +84,7 @@ class DPDecomposition(Solver):
     }
 
     def _solve(self, problem: Problem, params: dict[str, Any], seed: int | None) -> SolveOutput:
-        return self._solve_period([problem], params)[0]
+        return self._solve_period([problem], params, resolved=False)[0]
 
     def _resolve(self, problems, params, seeds, session) -> list[SolveOutput]:
         """States of the same period share every leg DP whose displaced fares they share: the
@@ -94,48 +95,56 @@ class DPDecomposition(Solver):
         for q, problem in enumerate(problems):
             by_period.setdefault(problem.period, []).append(q)
         for members in by_period.values():
-            done = self._solve_period([problems[q] for q in members], params)
+            done = self._solve_period([problems[q] for q in members], params, resolved=True)
             for q, one in zip(members, done, strict=True):
                 out[q] = one
         session.count("states", len(problems))
         return out  # type: ignore[return-value]
 
-    def _solve_period(self, problems: list[Problem], params: dict[str, Any]) -> list[SolveOutput]:
+    def _solve_period(self, problems: list[Problem], params: dict[str, Any], *, resolved: bool
+                      ) -> list[SolveOutput]:
         """Solve states that start in the same period; each distinct (leg, displaced fares)
-        DP is solved once, in one batched kernel call."""
+        DP is solved once, in one batched kernel call. A simulator's re-solve (``resolved``)
+        leaves out ``leg_value``: its booking control reads the bid-price table only."""
+        from rmkit.kernels.single_leg import gather_leg_tables
+
         network = problems[0].network
         prob = problems[0].probabilities
         x = np.stack([p.capacity for p in problems])  # (S, L)
         duals = leg_duals_many(problems, params["dual"])  # (S, L)
-        for _ in range(params["iterations"]):
-            fares = np.stack([displaced_fares(network, d) for d in duals])  # (S, L, n)
-            solved, where = _shared_leg_values(prob, fares, network)
-            at = solved[where, 0, :]  # (S, L, cmax+1): each leg's values at the first period
-            here = np.take_along_axis(at, x[:, :, None], axis=2)[:, :, 0]
-            last = np.take_along_axis(at, np.maximum(x - 1, 0)[:, :, None], axis=2)[:, :, 0]
-            duals = np.where(x > 0, here - np.where(x > 0, last, np.nan), np.inf)
-        leg_value, table = leg_tables(solved, legs_last=False)  # (U, T, cmax+1) per solved leg
-        message = ("value: sum of the leg values at the state (an approximation, not a bound); "
-                   f"{params['iterations']} leg DP pass(es) from the DLP duals ({params['dual']})")
-        outs = []
-        for s in range(len(problems)):
-            mine = where[s]
-            table_s = np.ascontiguousarray(table[mine].transpose(1, 2, 0))
-            outs.append(SolveOutput(
-                variables={
-                    "value": np.float64(here[s].sum()),
-                    "leg_value": np.ascontiguousarray(leg_value[mine].transpose(1, 2, 0)),
-                    "bid_price_table": table_s,
-                    "bid_price": bid_prices_at(table_s, x[s]),
-                    "net_fare": fares[s].copy(),
-                },
-                message=message,
-                owned=True,  # every array is this state's own
-            ))
+        with borrowed() as ws:  # the solved legs of a round: hundreds of MB on a large network
+            for _ in range(params["iterations"]):
+                fares = np.stack([displaced_fares(network, d) for d in duals])  # (S, L, n)
+                solved, where = _shared_leg_values(prob, fares, network, ws)
+                at = solved[where, 0, :]  # (S, L, cmax+1): each leg's values at the first period
+                here = np.take_along_axis(at, x[:, :, None], axis=2)[:, :, 0]
+                last = np.take_along_axis(at, np.maximum(x - 1, 0)[:, :, None], axis=2)[:, :, 0]
+                duals = np.where(x > 0, here - np.where(x > 0, last, np.nan), np.inf)
+            message = ("value: sum of the leg values at the state (an approximation, not a "
+                       f"bound); {params['iterations']} leg DP pass(es) from the DLP duals "
+                       f"({params['dual']})")
+            shape = (prob.shape[0], network.max_capacity + 1, network.n_legs)
+            outs = []
+            for s in range(len(problems)):
+                table_s = np.empty(shape)
+                value_s = np.empty((0, 0, 0) if resolved else shape)
+                gather_leg_tables(solved, where[s], table_s, value_s)
+                kept = {} if resolved else {"leg_value": value_s}
+                outs.append(SolveOutput(
+                    variables={
+                        "value": np.float64(here[s].sum()),
+                        **kept,
+                        "bid_price_table": table_s,
+                        "bid_price": bid_prices_at(table_s, x[s]),
+                        "net_fare": fares[s].copy(),
+                    },
+                    message=message,
+                    owned=True,  # every array is this state's own
+                ))
         return outs
 
 
-def _shared_leg_values(prob: np.ndarray, fares: np.ndarray, network: Network
+def _shared_leg_values(prob: np.ndarray, fares: np.ndarray, network: Network, ws: Workspace
                        ) -> tuple[np.ndarray, np.ndarray]:
     """Leg values of S states' displaced fares ``(S, L, n)`` (constant over the periods), each
     distinct (leg, fares) pair solved once: ``(solved (U, T+1, cmax+1), where (S, L))`` with
@@ -153,7 +162,7 @@ def _shared_leg_values(prob: np.ndarray, fares: np.ndarray, network: Network
     # (hundreds of distinct legs x T x n would be over 100 MB per round on a 600-period network)
     virtual = np.broadcast_to(np.asarray(rows)[:, None, :],
                               (len(rows), prob.shape[0], network.n_products))
-    solved = np.empty((len(rows), prob.shape[0] + 1, network.max_capacity + 1))
+    solved = ws.empty("dpd.solved", (len(rows), prob.shape[0] + 1, network.max_capacity + 1))
     leg_values_batch(np.ascontiguousarray(prob), virtual, np.asarray(caps, dtype=np.int64),
                      solved)
     return solved, where
