@@ -134,3 +134,23 @@ def test_a_trace_or_every_sale_keeps_the_general_loop(monkeypatch):
     assert traced.trace.shape == (20, 30)
     assert traced.trace[0, 0] == int(np.dot(net.capacities, grid_strides(net.capacities)))
     replay(net, dem, make_policy("dlp"), arrivals, seed=1, resolve=2, resolve_every_sale=True)
+
+
+@pytest.mark.parametrize("seed", range(8))
+def test_padded_legs_and_product_sums_equal_a_plain_loop(seed):
+    # the vectorised forms against the loop they replace: legs in ascending order, bid prices
+    # added one leg at a time from 0.0 (products of up to five legs: addition order matters)
+    from rmkit.controls.bid_price import product_sums
+    from rmkit.kernels.fixed_offer import padded_legs
+
+    net, _ = random_problem(seed, n_legs=5, max_capacity=3, n_products=12)
+    bid = np.random.default_rng(seed).uniform(0, 300, net.n_legs) * 1.1
+    legs = padded_legs(net.incidence)
+    for j in range(net.n_products):
+        mine = [int(i) for i in np.flatnonzero(net.incidence[:, j])]
+        assert legs[j].tolist() == mine + [net.n_legs] * (legs.shape[1] - len(mine))
+        total = 0.0
+        for i in mine:
+            total += float(bid[i])
+        assert product_sums(bid, net)[j] == total
+    assert legs[-1].tolist() == [net.n_legs] * legs.shape[1]

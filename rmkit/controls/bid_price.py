@@ -29,13 +29,15 @@ def offers(ctrl, k, t, j, seats, memo, net):
 
 def product_sums(bid: np.ndarray, network) -> np.ndarray:
     """``sum_{i in j} bid_i`` for each product, added leg by leg in ascending leg order (the
-    order of the simulator's leg lists, so the sums are those a loop in the kernel would make)."""
+    order of the simulator's leg lists, so the sums are those a loop in the kernel would make):
+    column w of the padded leg lists adds each product's w-th leg, or 0.0 past its last."""
+    from rmkit.kernels.fixed_offer import padded_legs
+
+    legs = padded_legs(network.incidence)[:-1]
+    priced = np.append(np.asarray(bid, dtype=np.float64), 0.0)  # the pad reads 0.0
     out = np.zeros(network.n_products)
-    for j in range(network.n_products):
-        s = 0.0
-        for i in np.flatnonzero(network.incidence[:, j]):
-            s += float(bid[i])
-        out[j] = s
+    for w in range(legs.shape[1]):
+        out += priced[legs[:, w]]
     return out
 
 

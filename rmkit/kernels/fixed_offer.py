@@ -92,9 +92,10 @@ def padded_legs(incidence: np.ndarray) -> np.ndarray:
     loop's leg lists), padded with the spare leg ``m``; row n (no customer) is all ``m``."""
     a = np.asarray(incidence) > 0
     m, n = a.shape
-    width = max(int(a.sum(axis=0).max(initial=0)), 1)
+    counts = a.sum(axis=0)
+    width = max(int(counts.max(initial=0)), 1)
     out = np.full((n + 1, width), m, dtype=np.int64)
-    for j in range(n):
-        mine = np.flatnonzero(a[:, j])
-        out[j, : mine.size] = mine
+    product, leg = np.nonzero(a.T)  # by product, then by leg ascending
+    first = np.concatenate([[0], np.cumsum(counts)[:-1]])
+    out[product, np.arange(product.size) - first[product]] = leg
     return out
