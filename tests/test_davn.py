@@ -252,7 +252,8 @@ def test_value_is_each_legs_static_revenue_at_prorated_shares(method):
     Rebuilt leg by leg from the public static-model functions. The connection's fare 200 splits
     125 / 75 by the one-leg fares 100 and 60, so crediting a leg with another leg's share shows.
     """
-    from rmkit.methods.shared.leg_heuristics import demand_pmf, levels_from_seat_values, nested_sales
+    from rmkit.methods.shared.leg_heuristics import levels_from_seat_values
+    from rmkit.methods.shared.nested_static import demand_pmf, nested_sales
 
     net, dem = two_legs()
     state = BookingState(period=10, capacity=(7, 4))

@@ -11,6 +11,7 @@ import pytest
 
 import rmkit.kernels.fixed_offer as fixed_kernels
 from rmkit.controls import load_controls
+from rmkit.controls.base import Control
 from rmkit.kernels.replay import replay_paths, replay_paths_parallel
 from rmkit.workflows.policies import FixedPolicy, NoSolvePolicy, make_policy
 from rmkit.workflows.simulate import FixedOfferLoop, grid_strides, kernel_network, replay
@@ -25,8 +26,8 @@ def _arrays(ctl, net, dem, seed):
     return result, ctl.arrays(result, net, net.capacities)
 
 
-FIXED = sorted(name for name, ctl in CONTROLS.items() if ctl.fixed_offer.__func__
-               is not CONTROLS["table"].fixed_offer.__func__)
+FIXED = sorted(name for name, ctl in CONTROLS.items()
+               if ctl.fixed_offer.__func__ is not Control.fixed_offer.__func__)
 
 
 def test_the_static_controls_declare_a_fixed_offer():
@@ -141,11 +142,10 @@ def test_padded_legs_and_product_sums_equal_a_plain_loop(seed):
     # the vectorised forms against the loop they replace: legs in ascending order, bid prices
     # added one leg at a time from 0.0 (products of up to five legs: addition order matters)
     from rmkit.controls.bid_price import product_sums
-    from rmkit.kernels.fixed_offer import padded_legs
 
     net, _ = random_problem(seed, n_legs=5, max_capacity=3, n_products=12)
     bid = np.random.default_rng(seed).uniform(0, 300, net.n_legs) * 1.1
-    legs = padded_legs(net.incidence)
+    legs = FixedOfferLoop.start(net).legs
     for j in range(net.n_products):
         mine = [int(i) for i in np.flatnonzero(net.incidence[:, j])]
         assert legs[j].tolist() == mine + [net.n_legs] * (legs.shape[1] - len(mine))

@@ -16,7 +16,6 @@ from rmkit import InputError
 from rmkit.methods.shared.leg_dp import single_leg_dp
 from rmkit.methods.shared.leg_heuristics import (
     booking_limits,
-    demand_pmf,
     emsr_a,
     emsr_b,
     emsr_b_curve,
@@ -25,6 +24,9 @@ from rmkit.methods.shared.leg_heuristics import (
     littlewood_pmf,
     marginal_seat_value,
     marginal_seat_value_pmf,
+)
+from rmkit.methods.shared.nested_static import (
+    demand_pmf,
     nested_revenue,
     nested_sales,
     optimal_protection_levels,

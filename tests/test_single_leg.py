@@ -147,10 +147,10 @@ def test_gathered_state_tables_equal_the_tables_of_every_leg_transposed():
     fares = np.broadcast_to(rng.uniform(10, 90, (caps.size, 1, n)), (caps.size, n_periods, n))
     solved = np.empty((caps.size, n_periods + 1, caps.max() + 1))
     leg_values_batch(prob, np.ascontiguousarray(fares), caps, solved)
-    leg_value, table = leg_tables(solved, legs_last=False)
+    leg_value, table = leg_tables(solved)  # (T, cmax+1, every solved leg)
     for mine in (np.array([0, 3, 4]), np.array([5, 1]), np.array([2])):
-        want_table = np.ascontiguousarray(table[mine].transpose(1, 2, 0))
-        want_value = np.ascontiguousarray(leg_value[mine].transpose(1, 2, 0))
+        want_table = np.ascontiguousarray(table[:, :, mine])
+        want_value = np.ascontiguousarray(leg_value[:, :, mine])
         for gather in (gather_leg_tables, gather_leg_tables.py_func):
             got_table, got_value = np.empty(want_table.shape), np.empty(want_value.shape)
             gather(solved, mine, got_table, got_value)

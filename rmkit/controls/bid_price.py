@@ -14,6 +14,7 @@ from rmkit.controls import register_control
 from rmkit.controls.base import Control, owned, scaled_variables, where
 from rmkit.errors import SolverError
 from rmkit.kernels.replay import ACCEPT_TOLERANCE, clears_bid_prices
+from rmkit.model.network import padded_rows
 
 
 class BidPriceArrays(NamedTuple):
@@ -31,10 +32,8 @@ def product_sums(bid: np.ndarray, network) -> np.ndarray:
     """``sum_{i in j} bid_i`` for each product, added leg by leg in ascending leg order (the
     order of the simulator's leg lists, so the sums are those a loop in the kernel would make):
     column w of the padded leg lists adds each product's w-th leg, or 0.0 past its last."""
-    from rmkit.kernels.fixed_offer import padded_legs
-
-    legs = padded_legs(network.incidence)[:-1]
-    priced = np.append(np.asarray(bid, dtype=np.float64), 0.0)  # the pad reads 0.0
+    legs = padded_rows(network.incidence.T)
+    priced = np.append(np.asarray(bid, dtype=np.float64), 0.0)  # the pad -1 reads this 0.0
     out = np.zeros(network.n_products)
     for w in range(legs.shape[1]):
         out += priced[legs[:, w]]

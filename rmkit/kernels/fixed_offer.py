@@ -86,16 +86,3 @@ def replay_fixed_offer_parallel(customer, paths, stop, open_, fare, legs, seats,
             replay_one(paths[q], x, sold, asked, customer, stop, open_, fare, legs, seats,
                        revenue, accepted, lost, next_period)
 
-
-def padded_legs(incidence: np.ndarray) -> np.ndarray:
-    """``(n+1, width)`` leg indices of each product in ascending order (the order of the general
-    loop's leg lists), padded with the spare leg ``m``; row n (no customer) is all ``m``."""
-    a = np.asarray(incidence) > 0
-    m, n = a.shape
-    counts = a.sum(axis=0)
-    width = max(int(counts.max(initial=0)), 1)
-    out = np.full((n + 1, width), m, dtype=np.int64)
-    product, leg = np.nonzero(a.T)  # by product, then by leg ascending
-    first = np.concatenate([[0], np.cumsum(counts)[:-1]])
-    out[product, np.arange(product.size) - first[product]] = leg
-    return out

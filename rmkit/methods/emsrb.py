@@ -65,7 +65,8 @@ from rmkit.methods.shared.fare_basis import (
     leg_classes,
     prorated_fares,
 )
-from rmkit.methods.shared.leg_heuristics import LAWS, demand_pmf_grid, emsr_b_curve, nested_sales_batch
+from rmkit.methods.shared.leg_heuristics import LAWS, emsr_b_curve
+from rmkit.methods.shared.nested_static import demand_pmf_grid, nested_sales_batch
 from rmkit.model.network import Network
 
 
@@ -94,7 +95,7 @@ class LegBatch:
 
     The padding lets EMSR-b and the static-model revenue run on all legs in one vectorised call
     (:func:`rmkit.methods.shared.leg_heuristics.emsr_b_curve` and
-    :func:`~rmkit.methods.shared.leg_heuristics.nested_sales_batch` document why it changes nothing).
+    :func:`~rmkit.methods.shared.nested_static.nested_sales_batch` document why it changes nothing).
     """
 
     classes: tuple[LegClasses, ...]

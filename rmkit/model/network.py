@@ -48,6 +48,18 @@ class Product:
     destination: str = ""
 
 
+def padded_rows(mask: np.ndarray) -> np.ndarray:
+    """Row r lists the columns where ``mask[r]`` is non-zero, ascending, padded with -1 (at
+    least one column, so a kernel can always index it). ``padded_rows(network.incidence.T)``:
+    each product's legs; ``padded_rows(network.incidence)``: each leg's products."""
+    nonzero = np.asarray(mask) != 0
+    counts = nonzero.sum(axis=1)
+    out = np.full((nonzero.shape[0], max(int(counts.max(initial=0)), 1)), -1, dtype=np.int64)
+    row, col = np.nonzero(nonzero)  # by row, then by column ascending
+    out[row, np.arange(row.size) - (np.cumsum(counts) - counts)[row]] = col
+    return out
+
+
 def grid_strides(capacities: np.ndarray) -> np.ndarray:
     """Row-major strides over the state grid ``(c_0+1, ..., c_{m-1}+1)``, last leg stride 1:
     the flat index of seats left x is ``sum_i x_i * stride_i`` (exact DP, stored policies)."""

@@ -58,7 +58,7 @@ from rmkit._version import __version__
 from rmkit.errors import InputError, ProblemTooLargeError
 from rmkit.limits import MAX_SEED, memory_refusal, whole_rule
 from rmkit.model.demand import Arrivals, DemandModel, check_compatible
-from rmkit.model.network import Network, grid_strides
+from rmkit.model.network import Network, grid_strides, padded_rows
 from rmkit.workflows.policies import PolicySource, make_policy
 from rmkit.workflows.progress import Progress
 from rmkit.workflows.stats import CONFIDENCE, summarize
@@ -145,11 +145,15 @@ class FixedOfferLoop:
 
     @classmethod
     def start(cls, network: Network) -> FixedOfferLoop:
-        from rmkit.kernels.fixed_offer import padded_legs
-
-        fare = np.zeros(network.n_products + 1)
+        """Fares and leg lists with a row n for "no customer" (fare 0), padded with the spare
+        leg m instead of -1 (the kernel's seat array has m + 1 entries)."""
+        n, m = network.n_products, network.n_legs
+        fare = np.zeros(n + 1)
         fare[:-1] = network.fares
-        return cls(fare, padded_legs(network.incidence))
+        own = padded_rows(network.incidence.T)
+        legs = np.full((n + 1, own.shape[1]), m, dtype=np.int64)
+        legs[:-1] = np.where(own < 0, m, own)
+        return cls(fare, legs)
 
     def replay(self, offer: np.ndarray, customer: np.ndarray, paths: np.ndarray, stop: int,
                book: _Book) -> None:

@@ -7,14 +7,8 @@ from hypothesis import given
 from hypothesis import strategies as st
 
 from rmkit import BookingState, get_solver
-from rmkit.methods.shared.leg_heuristics import (
-    booking_limits,
-    demand_pmf,
-    emsr_a,
-    emsr_b,
-    emsr_b_curve,
-    optimal_protection_levels,
-)
+from rmkit.methods.shared.leg_heuristics import booking_limits, emsr_a, emsr_b, emsr_b_curve
+from rmkit.methods.shared.nested_static import demand_pmf, optimal_protection_levels
 from tests.instances import random_problem
 
 

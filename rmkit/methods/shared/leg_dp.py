@@ -46,7 +46,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from rmkit.errors import InputError
-from rmkit.model.network import Network
+from rmkit.model.network import Network, padded_rows
 
 
 def _as_table(a: np.ndarray, name: str) -> np.ndarray:
@@ -208,23 +208,12 @@ def leg_values(prob: np.ndarray, fares: np.ndarray, capacities: np.ndarray) -> n
 
 def product_legs(network: Network) -> np.ndarray:
     """``(n_products, k_max)`` int64: the legs of each product, padded with -1."""
-    return _padded_rows(network.incidence.T)
+    return padded_rows(network.incidence.T)
 
 
 def leg_products(network: Network) -> np.ndarray:
     """``(n_legs, k_max)`` int64: the products using each leg, ascending, padded with -1."""
-    return _padded_rows(network.incidence)
-
-
-def _padded_rows(mask: np.ndarray) -> np.ndarray:
-    """Row r lists the columns where ``mask[r]`` is non-zero, ascending, padded with -1 (at
-    least one column, so a kernel can always index it)."""
-    width = max(int((mask != 0).sum(axis=1).max(initial=0)), 1)
-    out = np.full((mask.shape[0], width), -1, dtype=np.int64)
-    for r in range(mask.shape[0]):
-        cols = np.flatnonzero(mask[r])
-        out[r, : cols.size] = cols
-    return out
+    return padded_rows(network.incidence)
 
 
 def network_leg_values(prob: np.ndarray, fares: np.ndarray, network: Network) -> np.ndarray:
@@ -248,16 +237,14 @@ def value_at(values: np.ndarray, capacity: np.ndarray) -> np.ndarray:
     return values[np.arange(values.shape[0]), 0, capacity]
 
 
-def leg_tables(values: np.ndarray, legs_last: bool = True) -> tuple[np.ndarray, np.ndarray]:
+def leg_tables(values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """``(leg_value, bid_price_table)``, both ``(T, cmax+1, L)``, from ``(L, T+1, cmax+1)``
-    values; with ``legs_last=False`` both stay ``(L, T, cmax+1)`` (per leg, no transpose)."""
+    values."""
     later = values[:, 1:, :]
     table = np.empty(later.shape)
     with np.errstate(invalid="ignore"):
         np.subtract(later[:, :, 1:], later[:, :, :-1], out=table[:, :, 1:])
     table[:, :, 0] = np.inf
-    if not legs_last:
-        return values[:, :-1, :], table
     return (np.ascontiguousarray(values[:, :-1, :].transpose(1, 2, 0)),
             np.ascontiguousarray(table.transpose(1, 2, 0)))
 

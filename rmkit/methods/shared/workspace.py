@@ -4,8 +4,8 @@ A simulator's re-solve round runs hundreds of solves of one method, each allocat
 large working arrays (lr: six ``(legs, periods, products)`` arrays, 5.5 MB each on a
 600-period, 16-leg, 144-product network at mid-horizon). Memory that large comes fresh from the
 operating system each time, and on the machines this project runs on the first touch of each
-page costs about 0.8 ms per MB, taken under a lock the threads of a round share. Reused
-memory is already mapped. Arrays are zeroed or copied into before use, so no number changes.
+page costs about 0.8 ms per MB, more when the threads of a round take those faults together.
+Reused memory is already mapped. Arrays are zeroed or copied into before use, so no number changes.
 
 Each thread keeps its own arrays (a round's threads are its own), one per name, grown to the
 largest size asked for. :func:`borrowed` hands them out for the length of one solve; a solve
